@@ -1,0 +1,34 @@
+# The two commands a user needs: `make demo` and `make test`.
+# Each creates .venv and installs the project into it when missing.
+PY ?= python3
+VENV := .venv
+BIN := $(VENV)/bin
+STAMP := $(VENV)/.installed
+
+export MPLBACKEND := Agg
+
+.PHONY: demo test test-all lint bench clean
+
+$(STAMP): pyproject.toml
+	test -x $(BIN)/python || $(PY) -m venv $(VENV)
+	$(BIN)/python -m pip install --quiet --upgrade pip
+	$(BIN)/python -m pip install --quiet -e '.[test]'
+	touch $(STAMP)
+
+demo: $(STAMP)
+	$(BIN)/radwalk demo
+
+test: $(STAMP)
+	MPLCONFIGDIR=$$(mktemp -d) $(BIN)/python -m pytest -q
+
+test-all: $(STAMP)
+	MPLCONFIGDIR=$$(mktemp -d) $(BIN)/python -m pytest -q -m ''
+
+lint: $(STAMP)
+	$(BIN)/ruff check pipeline plugins tests benchmarks
+
+bench: $(STAMP)
+	$(BIN)/python benchmarks/sampler_cost.py
+
+clean:
+	rm -rf $(VENV) build *.egg-info radwalk-demo

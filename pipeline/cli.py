@@ -1,0 +1,158 @@
+"""The `radwalk` command line.
+
+Every deliberate error (a :class:`pipeline.errors.RadwalkError`) becomes one
+line on stderr and exit status 2; warnings about validity ranges are printed
+as ``warning:`` lines and go on.
+"""
+
+from __future__ import annotations
+
+import argparse
+import json
+import sys
+import warnings
+
+from . import __version__
+from .errors import ConfigError, RadwalkError
+
+
+def _parse_set(items):
+    out = {}
+    for item in items or ():
+        if "=" not in item:
+            raise ConfigError(f"--set needs NAME=VALUE, got {item!r}")
+        name, value = item.split("=", 1)
+        out[name.strip()] = value.strip()
+    return out
+
+
+def split_settings(stages_names: dict, settings: dict, registry):
+    """Separates text options (by the chosen components' declarations) from numeric parameters."""
+    from .model import DEFAULTS
+
+    names = {**DEFAULTS, **{k: v for k, v in stages_names.items() if v}}
+    options, params = {}, {}
+    for key, value in settings.items():
+        owner = None
+        for stage, cname in names.items():
+            comp = registry.get(stage, cname)
+            if key in {o.name for o in getattr(comp, "options", ())}:
+                owner = cname
+        if owner:
+            options.setdefault(owner, {})[key] = value
+        else:
+            params[key] = value
+    return names, options, params
+
+
+def cmd_model(args):
+    from .interior import format_summary, model_star
+    from .model import StageSet
+    from .registry import Registry
+
+    registry = Registry(plugin_files=args.plugin)
+    names, options, params = split_settings(
+        {"profile": args.profile, "opacity": args.opacity, "relation": args.relation}, _parse_set(args.set), registry
+    )
+    stages = StageSet.build(registry, names, options)
+    interior = model_star(stages, args.mass, args.X, args.Z, params, radius=args.radius, luminosity=args.luminosity)
+    if args.profile_out:
+        from .io_utils import write_table
+
+        write_table(interior.profile_table, args.profile_out)
+    if args.json:
+        print(json.dumps(interior.summary, indent=2))
+    else:
+        print(format_summary(interior.summary))
+    return 0
+
+
+def cmd_plugins(args):
+    from .registry import Registry
+
+    registry = Registry(plugin_files=args.plugin)
+    info = registry.describe()
+    if args.json:
+        print(json.dumps(info, indent=2))
+        return 0
+    for stage, comps in info.items():
+        print(f"{stage}:")
+        for c in comps:
+            print(f"  {c['name']:<20} {c['description']}")
+            print(f"  {'':<20} from: {c['source']}")
+            print(f"  {'':<20} valid: {c['validity']}")
+            for p in c["params"]:
+                unit = f" [{p['unit']}]" if p["unit"] else ""
+                pr = p["prior"]
+                print(
+                    f"  {'':<20}   {p['name']}{unit}: default {p['default']:g}, allowed "
+                    f"[{p['lower']:g}, {p['upper']:g}], prior {pr['kind']}[{pr['lower']:g}, {pr['upper']:g}]"
+                    f"{' (sampled)' if p['sampled'] else ''} - {p['description']}"
+                )
+            for o in c.get("options", []):
+                print(f"  {'':<20}   option {o['name']}: {o['description']}")
+        print()
+    return 0
+
+
+def _finite_float(text):
+    try:
+        return float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+
+
+def build_parser():
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("--plugin", action="append", default=[], metavar="FILE",
+                        help="load components from a plugin file (repeatable)")
+    p = argparse.ArgumentParser(prog="radwalk", description="Stellar interiors and photon transport timescales "
+                                "inferred from observed radius, luminosity and effective temperature.")
+    p.add_argument("--version", action="version", version=f"radwalk {__version__}")
+    sub = p.add_subparsers(dest="command", required=True)
+
+    m = sub.add_parser("model", parents=[common], help="interior and timescales of one star of given mass")
+    m.add_argument("--mass", type=_finite_float, required=True, help="mass in M_sun")
+    m.add_argument("--X", type=_finite_float, default=None, help="hydrogen mass fraction (default: solar)")
+    m.add_argument("--Z", type=_finite_float, default=None, help="metal mass fraction (default: solar)")
+    m.add_argument("--radius", type=_finite_float, help="radius in R_sun, replacing the relation's")
+    m.add_argument("--luminosity", type=_finite_float, help="luminosity in L_sun, replacing the relation's")
+    m.add_argument("--profile", help="profile model (default polytrope)")
+    m.add_argument("--opacity", help="opacity law (default combined)")
+    m.add_argument("--relation", help="mass-radius-luminosity relation (default homology)")
+    m.add_argument("--set", action="append", metavar="NAME=VALUE", help="component parameter or option")
+    m.add_argument("--json", action="store_true", help="print one JSON object")
+    m.add_argument("--profile-out", metavar="FILE", help="write the radial profile (ECSV, with units)")
+    m.set_defaults(func=cmd_model)
+
+    pl = sub.add_parser("plugins", parents=[common], help="list stages, components and their parameters")
+    pl.add_argument("--json", action="store_true")
+    pl.set_defaults(func=cmd_plugins)
+    return p
+
+
+def _show_warning(message, category, filename, lineno, file=None, line=None):
+    print(f"warning: {message}", file=sys.stderr)
+
+
+def main(argv=None):
+    parser = build_parser()
+    args = parser.parse_args(argv)
+    if getattr(args, "command", None) == "model":
+        from .composition import X_SUN, Z_SUN
+
+        args.X = X_SUN if args.X is None else args.X
+        args.Z = Z_SUN if args.Z is None else args.Z
+    warnings.showwarning = _show_warning
+    try:
+        return args.func(args)
+    except RadwalkError as exc:
+        print(f"radwalk: error: {exc}", file=sys.stderr)
+        return 2
+    except KeyboardInterrupt:
+        print("radwalk: interrupted", file=sys.stderr)
+        return 130
+
+
+if __name__ == "__main__":
+    sys.exit(main())

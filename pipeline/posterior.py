@@ -1,0 +1,118 @@
+"""The log-posterior of one star: priors from the components, likelihood of R, L, T_eff.
+
+``Posterior(theta[nwalkers, ndim]) -> [nwalkers]`` is vectorised over walkers
+(emcee's ``vectorize=True``), returns ``-inf`` outside the prior support or
+where the relation finds no star, and never NaN.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+
+from .components import Observations
+from .config import RunConfig
+from .errors import ConfigError
+from .model import StageSet
+from .params import Prior
+
+
+class Posterior:
+    """Log-posterior over the sampled parameters of a StageSet.
+
+    Parameters
+    ----------
+    stages : StageSet
+    observed : Observations
+        Measured radius (cm), luminosity (erg/s), T_eff (K) and their errors.
+    config : RunConfig
+        Prior overrides and fixed settings.
+    feh : tuple of float, optional
+        Measured [Fe/H] and its error (dex): a prior on log10(Z/X) relative to
+        the solar ratio of ``config.solar_z / config.solar_x``.
+    """
+
+    def __init__(self, stages: StageSet, observed: Observations, config: RunConfig,
+                 feh: tuple[float, float] | None = None):
+        self.stages = stages
+        self.observed = observed
+        self.feh = feh
+        self.solar_log_zx = float(np.log10(config.solar_z / config.solar_x))
+        declared = {p.name: p for p in stages.all_params()}
+        numeric = {k: v for k, v in config.settings.items() if k not in stages.option_names()}
+        for name in list(numeric) + list(config.priors):
+            if name not in declared:
+                stages.param(name)  # raises with a suggestion
+        self.fixed = {}
+        self.names = []
+        self.priors: list[Prior] = []
+        for p in stages.all_params():
+            if p.name in numeric and p.name not in config.priors:
+                self.fixed[p.name] = p.check(numeric[p.name])
+            elif p.sampled or p.name in config.priors:
+                prior = config.priors.get(p.name, p.default_prior())
+                if prior.lower < p.lower or prior.upper > p.upper:
+                    raise ConfigError(
+                        f"prior on {p.name!r} [{prior.lower:g}, {prior.upper:g}] reaches outside its allowed "
+                        f"range [{p.lower:g}, {p.upper:g}] {p.unit}".rstrip()
+                    )
+                self.names.append(p.name)
+                self.priors.append(prior)
+            else:
+                self.fixed[p.name] = p.default
+        self.params = [declared[n] for n in self.names]
+        self.ndim = len(self.names)
+        self._lik_names = [p.name for p in stages.likelihood.params]
+
+    # -- parameter vectors ----------------------------------------------
+    def values(self, theta) -> dict:
+        """Sampled and fixed values as a name -> [n] dict."""
+        theta = np.atleast_2d(theta)
+        n = theta.shape[0]
+        vals = {name: np.full(n, v) for name, v in self.fixed.items()}
+        for j, name in enumerate(self.names):
+            vals[name] = theta[:, j]
+        return vals
+
+    def log_prior(self, theta):
+        theta = np.atleast_2d(theta)
+        lp = np.zeros(theta.shape[0])
+        for j, prior in enumerate(self.priors):
+            lp = lp + prior.logpdf(theta[:, j])
+        vals = self.values(theta)
+        lp = np.where(vals["X"] + vals["Z"] <= 1.0, lp, -np.inf)
+        if self.feh is not None:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                zx = np.log10(vals["Z"] / vals["X"]) - self.solar_log_zx
+            lp = lp - 0.5 * ((zx - self.feh[0]) / self.feh[1]) ** 2
+            lp = np.where(np.isfinite(lp), lp, -np.inf)
+        return lp
+
+    def predict(self, theta) -> dict:
+        return self.stages.predict(self.values(theta))
+
+    def log_likelihood(self, theta, predicted=None):
+        vals = self.values(theta)
+        pred = predicted if predicted is not None else self.stages.predict(vals)
+        kw = {n: vals[n] for n in self._lik_names}
+        return self.stages.likelihood.loglike(pred, self.observed, **kw)
+
+    def __call__(self, theta):
+        theta = np.atleast_2d(theta)
+        out = np.full(theta.shape[0], -np.inf)
+        with np.errstate(all="ignore"):
+            lp = self.log_prior(theta)
+            ok = np.isfinite(lp)
+            if ok.any():
+                out[ok] = lp[ok] + self.log_likelihood(theta[ok])
+        out[np.isnan(out)] = -np.inf
+        return out
+
+    def sample_prior(self, rng: np.random.Generator, size: int):
+        """Draws from the (independent) priors, keeping only points with a finite posterior."""
+        cols = [p.sample(rng, size) for p in self.priors]
+        return np.column_stack(cols) if cols else np.zeros((size, 0))
+
+    def prior_widths(self):
+        """A scale per parameter: the standard deviation of its prior."""
+        rng = np.random.default_rng(0)
+        return self.sample_prior(rng, 4000).std(axis=0)

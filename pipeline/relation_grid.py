@@ -1,0 +1,153 @@
+"""A precomputed (log M, X, log Z) grid of a relation's R and L, interpolated in the sampler.
+
+A mass-radius-luminosity relation that solves for the radius by root finding
+costs milliseconds per call; the sampler calls it tens of thousands of times
+per star with the same opacity law and parameters.  So the relation is
+solved once on a regular grid in log10 M, X and log10 Z, for each
+combination of relation, opacity law and their (fixed) parameters, and
+trilinearly interpolated in log R and log L.  Grids are cached in memory and
+on disk (``$RADWALK_CACHE`` or ``~/.cache/radwalk``), keyed by the
+components, their settings and the source code they run.
+
+Points outside the grid, or runs in which a relation or opacity parameter is
+sampled, fall back to the direct solution.  The interpolation error is
+tested against the direct solution (tests/test_relation_grid.py).
+"""
+
+from __future__ import annotations
+
+import hashlib
+import inspect
+import json
+import os
+from pathlib import Path
+
+import numpy as np
+
+from . import constants as k
+
+LOG_M = (np.log10(0.05), np.log10(150.0), 0.02)  # start, stop, step (dex)
+X_AXIS = (0.40, 0.85, 0.025)
+LOG_Z = (-4.0, -1.0, 0.125)
+_BLOCK = 4096
+_MEMORY: dict[str, RelationGrid] = {}
+
+
+def _axis(spec):
+    start, stop, step = spec
+    n = int(round((stop - start) / step)) + 1
+    return np.linspace(start, start + step * (n - 1), n)
+
+
+def cache_dir() -> Path:
+    return Path(os.environ.get("RADWALK_CACHE", Path.home() / ".cache" / "radwalk"))
+
+
+def _source_digest(*objs) -> str:
+    h = hashlib.sha256()
+    for obj in objs:
+        mod = inspect.getmodule(type(obj) if not inspect.ismodule(obj) else obj)
+        try:
+            h.update(inspect.getsource(mod).encode())
+        except (OSError, TypeError):
+            h.update(repr(type(obj)).encode())
+    return h.hexdigest()
+
+
+class RelationGrid:
+    """log10 R and log10 L (cgs) of one relation + opacity combination on a regular grid."""
+
+    def __init__(self, table: np.ndarray):
+        self.axes = [_axis(LOG_M), _axis(X_AXIS), _axis(LOG_Z)]
+        self.table = table  # [nM, nX, nZ, 2]
+        self._lo = np.array([a[0] for a in self.axes])
+        self._step = np.array([a[1] - a[0] for a in self.axes])
+        self._n = np.array([a.size for a in self.axes])
+
+    @classmethod
+    def build(cls, relation, opacity, rel_kwargs: dict, block: int = _BLOCK) -> RelationGrid:
+        lm, xa, lz = (_axis(s) for s in (LOG_M, X_AXIS, LOG_Z))
+        LM, XX, LZ = np.meshgrid(lm, xa, lz, indexing="ij")
+        M = 10.0 ** LM.ravel() * k.M_SUN
+        X = XX.ravel()
+        Z = 10.0 ** LZ.ravel()
+        out = np.empty((M.size, 2))
+        with np.errstate(all="ignore"):
+            for s in range(0, M.size, block):
+                sl = slice(s, s + block)
+                R, L = relation.predict(M[sl], X[sl], Z[sl], opacity, **rel_kwargs)
+                out[sl, 0] = np.log10(R)
+                out[sl, 1] = np.log10(L)
+        return cls(out.reshape(LM.shape + (2,)))
+
+    def inside(self, M_msun, X, Z):
+        with np.errstate(divide="ignore", invalid="ignore"):
+            u = np.stack([np.log10(M_msun), X, np.log10(Z)])
+        lo = self._lo[:, None]
+        hi = (self._lo + self._step * (self._n - 1))[:, None]
+        return np.all((u >= lo) & (u <= hi), axis=0)
+
+    def __call__(self, M_msun, X, Z):
+        """Interpolated (R cm, L erg/s) for points inside the grid."""
+        with np.errstate(divide="ignore", invalid="ignore"):
+            u = (np.stack([np.log10(M_msun), X, np.log10(Z)]) - self._lo[:, None]) / self._step[:, None]
+        i = np.clip(np.floor(u).astype(int), 0, (self._n - 2)[:, None])
+        f = u - i
+        t = self.table
+        i0, i1, i2 = i
+        f0, f1, f2 = (ff[:, None] for ff in f)
+        c00 = t[i0, i1, i2] * (1 - f0) + t[i0 + 1, i1, i2] * f0
+        c01 = t[i0, i1, i2 + 1] * (1 - f0) + t[i0 + 1, i1, i2 + 1] * f0
+        c10 = t[i0, i1 + 1, i2] * (1 - f0) + t[i0 + 1, i1 + 1, i2] * f0
+        c11 = t[i0, i1 + 1, i2 + 1] * (1 - f0) + t[i0 + 1, i1 + 1, i2 + 1] * f0
+        c0 = c00 * (1 - f1) + c10 * f1
+        c1 = c01 * (1 - f1) + c11 * f1
+        v = c0 * (1 - f2) + c1 * f2
+        return 10.0 ** v[:, 0], 10.0 ** v[:, 1]
+
+
+def _options_digest(options: dict) -> str:
+    """Option values; files they name are hashed by content (an edited table is a new grid)."""
+    h = hashlib.sha256()
+    for name, value in sorted(options.items()):
+        h.update(f"{name}={value}".encode())
+        p = Path(str(value)).expanduser()
+        if p.is_file():
+            h.update(p.read_bytes())
+    return h.hexdigest()
+
+
+def grid_for(relation, opacity_law, opacity_kwargs: dict, rel_kwargs: dict, bound_opacity,
+             options: dict | None = None) -> RelationGrid:
+    """The grid for this combination, from memory, disk, or built now (and saved)."""
+    key_data = {
+        "relation": relation.name, "opacity": opacity_law.name,
+        "opacity_params": {a: float(v) for a, v in sorted(opacity_kwargs.items())},
+        "relation_params": {a: float(v) for a, v in sorted(rel_kwargs.items())},
+        "options": _options_digest(options or {}),
+        "axes": [LOG_M, X_AXIS, LOG_Z],
+        "source": _source_digest(relation, opacity_law),
+        "host": _source_digest(__import__("pipeline.energy").energy, __import__("pipeline.lane_emden").lane_emden,
+                               inspect.getmodule(RelationGrid)),
+    }
+    key = hashlib.sha256(json.dumps(key_data, sort_keys=True).encode()).hexdigest()[:24]
+    if key in _MEMORY:
+        return _MEMORY[key]
+    path = cache_dir() / f"relation-{relation.name}-{opacity_law.name}-{key}.npy"
+    grid = None
+    if path.is_file():
+        try:
+            grid = RelationGrid(np.load(path))
+        except (OSError, ValueError):
+            grid = None
+    if grid is None:
+        grid = RelationGrid.build(relation, bound_opacity, rel_kwargs)
+        try:
+            path.parent.mkdir(parents=True, exist_ok=True)
+            tmp = path.with_suffix(f".{os.getpid()}.tmp.npy")
+            np.save(tmp, grid.table)
+            os.replace(tmp, path)
+        except OSError:
+            pass  # a read-only cache only costs rebuilding
+    _MEMORY[key] = grid
+    return grid

@@ -1,0 +1,1 @@
+"""Built-in stage components of radwalk, one module per component family."""
