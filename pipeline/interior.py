@@ -69,7 +69,7 @@ def model_star(stages: StageSet, mass: float, X: float, Z: float, settings: dict
     values.update(mass=np.array([mass]), X=np.array([X]), Z=np.array([Z]))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", ValidityWarning)
-        pred = stages.predict(values)
+        pred = stages.predict(values, use_grid=False)  # one star: solve exactly, no grid to build
         R = pred["radius"] if radius is None else np.array([radius * k.R_SUN])
         L = pred["luminosity"] if luminosity is None else np.array([luminosity * k.L_SUN])
         if not (np.isfinite(R[0]) and np.isfinite(L[0])):
@@ -78,7 +78,7 @@ def model_star(stages: StageSet, mass: float, X: float, Z: float, settings: dict
                 f"X = {X:g}, Z = {Z:g}; give --radius and --luminosity to model it anyway"
             )
         prof, tr = stages.structure(values, R, L)
-    notes = [str(w.message) for w in caught] + stages.validity_messages(values, prof)
+    notes = list(dict.fromkeys([str(w.message) for w in caught] + stages.validity_messages(values, prof)))
     s = tr.scalars
     r_rel = prof.r[0] / prof.R[0]
     teff = (L[0] / (4 * np.pi * R[0] ** 2 * k.SIGMA_SB)) ** 0.25

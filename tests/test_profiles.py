@@ -11,7 +11,7 @@ from pipeline import constants as const
 from pipeline import lane_emden as le
 from pipeline.components import Profile, ProfileModel
 from pipeline.composition import mu
-from pipeline.errors import ConfigError, ModelError, ValidityWarning
+from pipeline.errors import ConfigError, ModelError
 from pipeline.params import Param, Validity
 from pipeline.polytrope import (
     eddington_beta,
@@ -111,11 +111,13 @@ def test_eddington_profile_is_self_consistent():
     np.testing.assert_allclose(q.beta, p.beta, rtol=1e-9)
 
 
-def test_eddington_warns_outside_mass_range():
-    with pytest.warns(ValidityWarning, match=r"0.5-100 M_sun for 1 of 2 samples"):
-        EddingtonStandard().profile(
-            np.array([0.2, 1.0]) * const.M_SUN, np.array([0.25, 1.0]) * const.R_SUN, 0.7, 0.02
-        )
+def test_eddington_outside_mass_range_is_reported(registry):
+    from pipeline.model import StageSet
+
+    stages = StageSet.build(registry, {"profile": "eddington-standard"})
+    values = {"mass": np.array([0.2, 1.0]), "X": np.array([0.7, 0.7]), "Z": np.array([0.02, 0.02])}
+    msgs = stages.validity_messages(values)
+    assert any("eddington-standard" in m and "mass" in m and "50%" in m for m in msgs), msgs
 
 
 # --- a Sun-like polytrope -----------------------------------------------------
