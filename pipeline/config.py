@@ -19,11 +19,11 @@ Layout (every section optional)::
 
     [sampler]
     walkers = 32
-    chunk = 400
+    chunk = 200
     max_steps = 20000
     tau_multiple = 50
     tau_change = 0.01
-    optimizer_starts = 6
+    optimizer_starts = 4
     derived_samples = 1500
 
     [metallicity]
@@ -63,11 +63,11 @@ CATALOG_COLUMNS = ("id", "radius", "radius_err", "luminosity", "luminosity_err",
 @dataclass(frozen=True)
 class SamplerConfig:
     walkers: int = 32
-    chunk: int = 400
+    chunk: int = 200
     max_steps: int = 20000
     tau_multiple: float = 50.0
     tau_change: float = 0.01
-    optimizer_starts: int = 6
+    optimizer_starts: int = 4
     derived_samples: int = 1500
 
     def __post_init__(self):

@@ -148,14 +148,14 @@ def derive(post: Posterior, samples: np.ndarray):
         warnings.simplefilter("always", ValidityWarning)
         pred = post.stages.predict(vals)
         ok = np.isfinite(pred["radius"]) & np.isfinite(pred["luminosity"])
-        vals_ok = {kk: v[ok] for kk, v in vals.items()}
+        vals_ok = {kk: (v[ok] if np.ndim(v) else v) for kk, v in vals.items()}
         prof, tr = post.stages.structure(vals_ok, pred["radius"][ok], pred["luminosity"][ok])
     notes = [str(w.message) for w in caught]
     notes += post.stages.validity_messages(vals_ok, prof)
     derived = {}
     for key in ("radius", "luminosity", "teff"):
         derived[key] = pred[key][ok] * OUTPUT_UNITS[key][1]
-    derived["mu"] = mu(vals_ok["X"], vals_ok["Z"])
+    derived["mu"] = np.broadcast_to(mu(vals_ok["X"], vals_ok["Z"]), (int(ok.sum()),)).copy()
     for key, v in tr.scalars.items():
         derived[key] = v * OUTPUT_UNITS.get(key, (None, 1.0))[1]
     fields = {"rho": prof.rho, "T": prof.T, **tr.fields}
@@ -187,10 +187,12 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     """Samples one star under one opacity law; returns its summary and in-memory products."""
     stages = stages_for(config, opacity)
     post = Posterior(stages, star.observations(), config, feh=star.feh)
-    chain_seed, ppc_seed = seed.spawn(2)
+    chain_seed, ppc_seed, prior_seed = seed.spawn(3)
     chain = run_chain(post, config.sampler, chain_seed, chain_path=chain_path)
     check_reachable(post, chain.map_theta)
     flat, flat_lp = chain.flat()
+    indep = post.draw_independent(np.random.default_rng(prior_seed), flat.shape[0])
+    flat = np.column_stack([flat, indep])
     idx = _evenly(flat.shape[0], config.sampler.derived_samples)
     derived, bands, r_rel, notes, ok = derive(post, flat[idx])
     pval = ppc_pvalue(post, flat[idx], np.random.default_rng(ppc_seed))
@@ -203,17 +205,23 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     if not ok.all():
         warn.append(f"{int((~ok).sum())} of {ok.size} samples gave no model star and were left out")
 
-    widths = post.prior_widths()
+    all_params = post.params + [p for p, _ in post.independent]
+    all_priors = post.priors + [pr for _, pr in post.independent]
+    widths = np.concatenate([post.prior_widths(), indep.std(axis=0) if indep.size else np.zeros(0)])
     params = {}
     ess = chain.effective_sample_size()
-    for j, p in enumerate(post.params):
+    for j, p in enumerate(all_params):
         x = flat[:, j]
         p16, p50, p84 = _percentiles(x)
         ratio = float(np.std(x) / widths[j]) if widths[j] > 0 else float("nan")
+        sampled = j < post.ndim
         params[p.name] = {
-            "unit": p.unit, "p16": p16, "p50": p50, "p84": p84, "map": float(chain.map_theta[j]),
-            "tau": float(chain.tau[j]), "ess": float(ess[j]), "prior": post.priors[j].describe(),
+            "unit": p.unit, "p16": p16, "p50": p50, "p84": p84,
+            "map": float(chain.map_theta[j]) if sampled else float("nan"),
+            "tau": float(chain.tau[j]) if sampled else float("nan"),
+            "ess": float(ess[j]) if sampled else float(x.size), "prior": all_priors[j].describe(),
             "posterior_over_prior_width": ratio, "constrained": bool(ratio < 0.5),
+            "drawn_from_prior": not sampled,
         }
     map_derived = {}
     try:
@@ -246,8 +254,8 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     }
     products = FitProducts(
         star=star, opacity=stages.opacity.name, chain=chain,
-        param_labels=[p.latex or p.name for p in post.params], param_units=[p.unit for p in post.params],
-        priors=list(post.priors), samples=flat, derived=derived, r_rel=r_rel, bands=bands,
+        param_labels=[p.latex or p.name for p in all_params], param_units=[p.unit for p in all_params],
+        priors=all_priors, samples=flat, derived=derived, r_rel=r_rel, bands=bands,
         observed=star.user_values(),
     )
     return summary, products

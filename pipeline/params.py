@@ -62,11 +62,10 @@ class Prior:
         """Log prior density (unnormalised for the IMF kinds), ``-inf`` outside."""
         x = np.asarray(x, dtype=float)
         inside = (x >= self.lower) & (x <= self.upper)
-        out = np.full(x.shape, -np.inf)
+        if self.kind == "uniform":  # the common cases first: they run in the sampler's inner loop
+            return np.where(inside, -math.log(self.upper - self.lower), -np.inf)
         xi = np.where(inside, x, 0.5 * (self.lower + self.upper))
-        if self.kind == "uniform":
-            val = np.full(x.shape, -math.log(self.upper - self.lower))
-        elif self.kind == "log-uniform":
+        if self.kind == "log-uniform":
             val = -np.log(xi) - math.log(math.log(self.upper / self.lower))
         elif self.kind in ("normal", "truncated-normal"):
             val = -0.5 * ((xi - self.mean) / self.sigma) ** 2
@@ -81,8 +80,7 @@ class Prior:
                 -0.3 * np.log(xi / 0.08) - 1.3 * math.log(0.08 / 0.5),
                 np.where(xi < 0.5, -1.3 * np.log(xi / 0.5), -2.3 * np.log(xi / 0.5)),
             )
-        out[inside] = val[inside]
-        return out
+        return np.where(inside, val, -np.inf)
 
     def sample(self, rng: np.random.Generator, size: int):
         """Draws from the prior (rejection for the shaped kinds)."""

@@ -45,6 +45,11 @@ class Posterior:
         self.fixed = {}
         self.names = []
         self.priors: list[Prior] = []
+        # Profile parameters never reach the likelihood (the relation predicts R and L without the
+        # profile), so their posterior is their prior: they are drawn from it directly after
+        # sampling instead of being random-walked by emcee, which only lengthens the chain.
+        self.independent: list[tuple] = []
+        profile_names = {p.name for p in stages.profile.params}
         for p in stages.all_params():
             if p.name in numeric and p.name not in config.priors:
                 self.fixed[p.name] = p.check(numeric[p.name])
@@ -55,8 +60,11 @@ class Posterior:
                         f"prior on {p.name!r} [{prior.lower:g}, {prior.upper:g}] reaches outside its allowed "
                         f"range [{p.lower:g}, {p.upper:g}] {p.unit}".rstrip()
                     )
-                self.names.append(p.name)
-                self.priors.append(prior)
+                if p.name in profile_names:
+                    self.independent.append((p, prior))
+                else:
+                    self.names.append(p.name)
+                    self.priors.append(prior)
             else:
                 self.fixed[p.name] = p.default
         self.params = [declared[n] for n in self.names]
@@ -64,14 +72,31 @@ class Posterior:
         self._lik_names = [p.name for p in stages.likelihood.params]
 
     # -- parameter vectors ----------------------------------------------
+    @property
+    def all_names(self) -> list:
+        """Names of the sampled parameters followed by those drawn from their priors."""
+        return self.names + [p.name for p, _ in self.independent]
+
     def values(self, theta) -> dict:
-        """Sampled and fixed values as a name -> [n] dict."""
+        """Sampled and fixed values as a name -> [n] dict.
+
+        ``theta`` holds the sampled parameters, optionally followed by the
+        independent (prior-drawn) ones in the order of :attr:`all_names`; those
+        not given are held at their defaults.
+        """
         theta = np.atleast_2d(theta)
-        n = theta.shape[0]
-        vals = {name: np.full(n, v) for name, v in self.fixed.items()}
+        # fixed values stay scalars: every stage broadcasts them against the [n] arrays
+        vals = dict(self.fixed)
         for j, name in enumerate(self.names):
             vals[name] = theta[:, j]
+        for j, (p, _) in enumerate(self.independent, start=self.ndim):
+            vals[p.name] = theta[:, j] if theta.shape[1] > j else p.default
         return vals
+
+    def draw_independent(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        """Draws of the prior-only parameters, [size, n_independent]."""
+        cols = [prior.sample(rng, size) for _, prior in self.independent]
+        return np.column_stack(cols) if cols else np.zeros((size, 0))
 
     def log_prior(self, theta):
         theta = np.atleast_2d(theta)

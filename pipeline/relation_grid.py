@@ -63,6 +63,11 @@ class RelationGrid:
         self._lo = np.array([a[0] for a in self.axes])
         self._step = np.array([a[1] - a[0] for a in self.axes])
         self._n = np.array([a.size for a in self.axes])
+        nm, nx, nz = self._n
+        self._flat = table.reshape(-1, 2)
+        self._strides = np.array([nx * nz, nz, 1])
+        self._bits = np.array([[a, b, c] for a in (0, 1) for b in (0, 1) for c in (0, 1)])
+        self._offsets = self._bits @ self._strides  # [8]
 
     @classmethod
     def build(cls, relation, opacity, rel_kwargs: dict, block: int = _BLOCK) -> RelationGrid:
@@ -88,21 +93,19 @@ class RelationGrid:
         return np.all((u >= lo) & (u <= hi), axis=0)
 
     def __call__(self, M_msun, X, Z):
-        """Interpolated (R cm, L erg/s) for points inside the grid."""
+        """Interpolated (R cm, L erg/s) for points inside the grid (trilinear in log R, log L)."""
         with np.errstate(divide="ignore", invalid="ignore"):
             u = (np.stack([np.log10(M_msun), X, np.log10(Z)]) - self._lo[:, None]) / self._step[:, None]
-        i = np.clip(np.floor(u).astype(int), 0, (self._n - 2)[:, None])
+        i = np.clip(u.astype(int), 0, self._n[:, None] - 2)  # u >= 0 inside, so int() is floor
         f = u - i
-        t = self.table
-        i0, i1, i2 = i
-        f0, f1, f2 = (ff[:, None] for ff in f)
-        c00 = t[i0, i1, i2] * (1 - f0) + t[i0 + 1, i1, i2] * f0
-        c01 = t[i0, i1, i2 + 1] * (1 - f0) + t[i0 + 1, i1, i2 + 1] * f0
-        c10 = t[i0, i1 + 1, i2] * (1 - f0) + t[i0 + 1, i1 + 1, i2] * f0
-        c11 = t[i0, i1 + 1, i2 + 1] * (1 - f0) + t[i0 + 1, i1 + 1, i2 + 1] * f0
-        c0 = c00 * (1 - f1) + c10 * f1
-        c1 = c01 * (1 - f1) + c11 * f1
-        v = c0 * (1 - f2) + c1 * f2
+        base = self._strides @ i  # flat index of the lower corner, [n]
+        corners = self._flat[base[:, None] + self._offsets]  # [n, 8, 2]
+        g = 1.0 - f
+        # weight of corner (a, b, c) = prod over axes of (f if bit set else 1 - f)
+        w0 = np.stack([g[0], f[0]])[self._bits[:, 0]]  # [8, n]
+        w1 = np.stack([g[1], f[1]])[self._bits[:, 1]]
+        w2 = np.stack([g[2], f[2]])[self._bits[:, 2]]
+        v = np.einsum("kn,nkc->nc", w0 * w1 * w2, corners)
         return 10.0 ** v[:, 0], 10.0 ** v[:, 1]
 
 
