@@ -129,10 +129,7 @@ class StageSet:
         if grid is None:
             R, L = self.relation.predict(m_sun * k.M_SUN, X, Z, self.bound_opacity(values), **rel_kw)
         else:
-            inside = grid.inside(m_sun, X, Z)
-            R = np.empty(n)
-            L = np.empty(n)
-            R[inside], L[inside] = grid(m_sun[inside], X[inside], Z[inside])
+            R, L, inside = grid(m_sun, X, Z)
             if not inside.all():
                 out = ~inside
                 sub = {name: (v[out] if np.ndim(v) and np.size(v) == n else v) for name, v in values.items()}

@@ -119,7 +119,10 @@ class Posterior:
         vals = self.values(theta)
         pred = predicted if predicted is not None else self.stages.predict(vals)
         kw = {n: vals[n] for n in self._lik_names}
-        return self.stages.likelihood.loglike(pred, self.observed, **kw)
+        ll = self.stages.likelihood.loglike(pred, self.observed, **kw)
+        # a relation that finds no star (NaN) or returns nonsense (<= 0) gives no likelihood
+        physical = (pred["radius"] > 0) & (pred["luminosity"] > 0)
+        return np.where(physical, ll, -np.inf)
 
     def __call__(self, theta):
         theta = np.atleast_2d(theta)

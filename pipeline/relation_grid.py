@@ -68,6 +68,7 @@ class RelationGrid:
         self._strides = np.array([nx * nz, nz, 1])
         self._bits = np.array([[a, b, c] for a in (0, 1) for b in (0, 1) for c in (0, 1)])
         self._offsets = self._bits @ self._strides  # [8]
+        self._top = (self._n - 1)[:, None]
 
     @classmethod
     def build(cls, relation, opacity, rel_kwargs: dict, block: int = _BLOCK) -> RelationGrid:
@@ -85,17 +86,14 @@ class RelationGrid:
                 out[sl, 1] = np.log10(L)
         return cls(out.reshape(LM.shape + (2,)))
 
-    def inside(self, M_msun, X, Z):
-        with np.errstate(divide="ignore", invalid="ignore"):
-            u = np.stack([np.log10(M_msun), X, np.log10(Z)])
-        lo = self._lo[:, None]
-        hi = (self._lo + self._step * (self._n - 1))[:, None]
-        return np.all((u >= lo) & (u <= hi), axis=0)
-
     def __call__(self, M_msun, X, Z):
-        """Interpolated (R cm, L erg/s) for points inside the grid (trilinear in log R, log L)."""
+        """Interpolated (R cm, L erg/s, inside) — trilinear in log R and log L.
+
+        ``inside`` [n] marks points within the grid; R and L are NaN elsewhere.
+        """
         with np.errstate(divide="ignore", invalid="ignore"):
             u = (np.stack([np.log10(M_msun), X, np.log10(Z)]) - self._lo[:, None]) / self._step[:, None]
+        inside = np.all((u >= 0) & (u <= self._top), axis=0)
         i = np.clip(u.astype(int), 0, self._n[:, None] - 2)  # u >= 0 inside, so int() is floor
         f = u - i
         base = self._strides @ i  # flat index of the lower corner, [n]
@@ -106,7 +104,8 @@ class RelationGrid:
         w1 = np.stack([g[1], f[1]])[self._bits[:, 1]]
         w2 = np.stack([g[2], f[2]])[self._bits[:, 2]]
         v = np.einsum("kn,nkc->nc", w0 * w1 * w2, corners)
-        return 10.0 ** v[:, 0], 10.0 ** v[:, 1]
+        v[~inside] = np.nan
+        return 10.0 ** v[:, 0], 10.0 ** v[:, 1], inside
 
 
 def _options_digest(options: dict) -> str:

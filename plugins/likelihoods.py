@@ -44,13 +44,9 @@ def _residuals(predicted: dict, observed: Observations, params: dict):
         yield (pred - value) / sigma, sigma
 
 
-def _clean(ll, predicted):
-    """-inf where a prediction was not finite or not positive; never NaN."""
-    ok = np.ones(np.shape(ll), dtype=bool)
-    for key in OBSERVABLES:
-        p = np.asarray(predicted[key])
-        ok &= np.isfinite(p) & (p > 0)
-    return np.where(ok & np.isfinite(ll), ll, -np.inf)
+def _clean(ll):
+    """-inf where the log-likelihood is not finite (a relation that found no star gives NaN); never NaN."""
+    return np.where(np.isfinite(ll), ll, -np.inf)
 
 
 class Gaussian:
@@ -64,7 +60,7 @@ class Gaussian:
         ll = np.zeros(n)
         for z, sigma in _residuals(predicted, observed, params):
             ll = ll - 0.5 * z**2 - np.log(sigma)
-        return _clean(ll, predicted)
+        return _clean(ll)
 
 
 class StudentT:
@@ -82,7 +78,7 @@ class StudentT:
         norm = gammaln((nu + 1) / 2) - gammaln(nu / 2) - 0.5 * np.log(nu * np.pi)
         for z, sigma in _residuals(predicted, observed, params):
             ll = ll + norm - np.log(sigma) - 0.5 * (nu + 1) * np.log1p(z**2 / nu)
-        return _clean(ll, predicted)
+        return _clean(ll)
 
 
 @hookimpl
