@@ -4,6 +4,7 @@ PY ?= python3
 VENV := .venv
 BIN := $(VENV)/bin
 STAMP := $(VENV)/.installed
+EXAMPLE := $(VENV)/.example-plugin
 
 export MPLBACKEND := Agg
 
@@ -18,10 +19,15 @@ $(STAMP): pyproject.toml
 demo: $(STAMP)
 	$(BIN)/radwalk demo
 
-test: $(STAMP)
-	MPLCONFIGDIR=$$(mktemp -d) $(BIN)/python -m pytest -q
+# The tests use the example opacity plugin as an installed package (entry-point discovery).
+$(EXAMPLE): $(STAMP) examples/opacity_plugin/pyproject.toml
+	$(BIN)/python -m pip install --quiet ./examples/opacity_plugin
+	touch $(EXAMPLE)
 
-test-all: $(STAMP)
+test: $(STAMP) $(EXAMPLE)
+	MPLCONFIGDIR=$$(mktemp -d) RADWALK_CACHE=$${RADWALK_CACHE:-$(CURDIR)/.cache} $(BIN)/python -m pytest -q
+
+test-all: $(STAMP) $(EXAMPLE)
 	MPLCONFIGDIR=$$(mktemp -d) $(BIN)/python -m pytest -q -m ''
 
 lint: $(STAMP)
