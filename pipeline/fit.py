@@ -71,6 +71,7 @@ class FitProducts:
     star: Star
     opacity: str
     chain: Chain
+    param_names: list  # sampled parameters first (as in chain), then those drawn from their priors
     param_labels: list
     param_units: list
     priors: list
@@ -253,7 +254,7 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
         "warnings": warn,
     }
     products = FitProducts(
-        star=star, opacity=stages.opacity.name, chain=chain,
+        star=star, opacity=stages.opacity.name, chain=chain, param_names=[p.name for p in all_params],
         param_labels=[p.latex or p.name for p in all_params], param_units=[p.unit for p in all_params],
         priors=all_priors, samples=flat, derived=derived, r_rel=r_rel, bands=bands,
         observed=star.user_values(),

@@ -8,6 +8,9 @@ import tempfile
 from contextlib import contextmanager
 from pathlib import Path
 
+_UMASK = os.umask(0)
+os.umask(_UMASK)
+
 
 @contextmanager
 def atomic_path(path, suffix: str | None = None):
@@ -16,6 +19,7 @@ def atomic_path(path, suffix: str | None = None):
     path.parent.mkdir(parents=True, exist_ok=True)
     fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix or path.suffix, dir=path.parent)
     os.close(fd)
+    os.chmod(tmp, 0o666 & ~_UMASK)  # mkstemp makes 0600; outputs should read like any other file
     try:
         yield Path(tmp)
         os.replace(tmp, path)
