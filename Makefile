@@ -20,12 +20,13 @@ demo: $(STAMP)
 	$(BIN)/radwalk demo
 
 # The tests use the example opacity plugin as an installed package (entry-point discovery).
-$(EXAMPLE): $(STAMP) examples/opacity_plugin/pyproject.toml
-	$(BIN)/python -m pip install --quiet ./examples/opacity_plugin
+$(EXAMPLE): $(STAMP) examples/opacity_plugin/pyproject.toml examples/opacity_plugin/radwalk_bent_power.py
+	$(BIN)/python -m pip install --quiet --force-reinstall --no-deps ./examples/opacity_plugin
 	touch $(EXAMPLE)
 
 test: $(STAMP) $(EXAMPLE)
-	MPLCONFIGDIR=$$(mktemp -d) RADWALK_CACHE=$${RADWALK_CACHE:-$(CURDIR)/.cache} $(BIN)/python -m pytest -q
+	MPLCONFIGDIR=$$(mktemp -d) RADWALK_CACHE=$${RADWALK_CACHE:-$(CURDIR)/.cache} $(BIN)/python -m pytest -q \
+		tests examples/opacity_plugin/tests
 
 test-all: $(STAMP) $(EXAMPLE)
 	MPLCONFIGDIR=$$(mktemp -d) $(BIN)/python -m pytest -q -m ''

@@ -53,6 +53,8 @@ TIMESCALES = ("diffusion_time", "diffusion_time_radiative", "kelvin_helmholtz_ti
 def derived_unit(name: str) -> str:
     if name in OUTPUT_UNITS:
         return OUTPUT_UNITS[name][0]
+    if name in PLUGIN_UNITS:
+        return PLUGIN_UNITS[name]
     return QUANTITIES[name][0]
 
 
@@ -60,7 +62,7 @@ def derived_label(name: str) -> str:
     if name in LABELS:
         return LABELS[name]
     unit = derived_unit(name)
-    base = QUANTITIES[name][2]
+    base = QUANTITIES[name][2] if name in QUANTITIES else name.replace("_", " ")
     return f"{base}$\\,[\\mathrm{{{unit.replace(' ', '')}}}]$" if unit else base
 
 
@@ -108,7 +110,37 @@ def stages_for(config: RunConfig, opacity: str | None = None) -> StageSet:
         comp = probe.option_names().get(key)
         if comp is not None:
             opts.setdefault(comp.name, {})[key] = value
-    return StageSet.build(reg, names, opts)
+    stages = StageSet.build(reg, names, opts)
+    law = stages.opacity.name
+    check_opacity_contract(tuple(config.plugins), law, tuple(sorted(opts.get(law, {}).items())))
+    return stages
+
+
+PROBE_CHECKS = ("configure", "call", "shape", "finite", "positive")
+PROBE_POINTS = 24
+
+
+@lru_cache(maxsize=32)
+def check_opacity_contract(plugins: tuple, name: str, options: tuple = ()) -> None:
+    """Raises PluginError naming the law and its first bad point if it breaks its contract.
+
+    A coarse run of the plugin checker (pipeline/plugin_check.py) over the
+    law's own validity range, once per process and law (~0.2 s): a law that
+    returns NaN, zero, negative or wrongly shaped values is named at once,
+    instead of surfacing as a sampler that finds no finite posterior.
+    """
+    from .plugin_check import check_component
+
+    reg = registry_for(plugins)
+    entry = reg.entries["opacity"][name]
+    report = check_component(entry, grid_points=PROBE_POINTS, options=dict(options) or None, registry=reg)
+    bad = [r for r in report.rows if not r.passed and r.check in PROBE_CHECKS]
+    if bad:
+        raise PluginError(
+            f"opacity {name!r} ({entry.source}) fails the {bad[0].check!r} check inside its own validity "
+            f"range: {bad[0].detail}; `radwalk check-plugin` prints the full table",
+            plugin=entry.source,
+        )
 
 
 def _percentiles(x):
@@ -159,9 +191,34 @@ def derive(post: Posterior, samples: np.ndarray):
     derived["mu"] = np.broadcast_to(mu(vals_ok["X"], vals_ok["Z"]), (int(ok.sum()),)).copy()
     for key, v in tr.scalars.items():
         derived[key] = v * OUTPUT_UNITS.get(key, (None, 1.0))[1]
+    derived.update(plugin_quantities(post.stages, prof, vals_ok, tr, set(derived)))
     fields = {"rho": prof.rho, "T": prof.T, **tr.fields}
     bands = {f: np.percentile(fields[f], BAND_PERCENTILES, axis=0) for f in BAND_FIELDS}
     return derived, bands, prof.r[0] / prof.R[0], notes, ok
+
+
+# units of quantities that plugins add through the radwalk_derived_quantities hook
+PLUGIN_UNITS: dict = {}
+
+
+def plugin_quantities(stages, profile, values, tr, taken: set) -> dict:
+    """Quantities added by plugins' ``radwalk_derived_quantities`` hooks, name -> [n]."""
+    hook = stages.registry.derived_hooks()
+    if not hook.get_hookimpls():
+        return {}
+    out = {}
+    for extra in hook(profile=profile, opacity=stages.bound_opacity(values), quantities=dict(tr.scalars)):
+        for name, item in (extra or {}).items():
+            try:
+                arr, unit, _desc = item
+            except (TypeError, ValueError):
+                raise PluginError(f"derived quantity {name!r} must be (values, unit, description)") from None
+            if name in taken or name in out:
+                raise PluginError(f"derived quantity {name!r} is already defined; choose another name")
+            arr = np.broadcast_to(np.asarray(arr, dtype=float), (profile.n,)).copy()
+            PLUGIN_UNITS[name] = str(unit)
+            out[name] = arr
+    return out
 
 
 def ppc_pvalue(post: Posterior, samples, rng: np.random.Generator):
@@ -265,7 +322,6 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
 def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> StarResult:
     """The per-star task.  Never raises for a star's own problems: they become status 'failed'."""
     t0 = time.perf_counter()
-    seed = seed_for(config.seed, star.id)
     folder = Path(outdir) if outdir else None
     try:
         with warnings.catch_warnings():
@@ -275,7 +331,8 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> 
                 chain_path = None
                 if folder is not None:
                     chain_path = folder / ("chain.partial.h5" if j == 0 else f"chain-{op}.partial.h5")
-                fits[op], products[op] = fit_one(star, config, seed, op, chain_path)
+                # every law gets the same fresh seed, so a comparison is paired and order-free
+                fits[op], products[op] = fit_one(star, config, seed_for(config.seed, star.id), op, chain_path)
         primary = config.opacity_names()[0]
         summary = dict(fits[primary])
         if len(fits) > 1:

@@ -115,25 +115,22 @@ class Registry:
     def _register(self, module, source: str):
         if self.pm.is_registered(module):
             return
+        # A misspelled hook would otherwise be reported by pluggy without a suggestion.
+        known = [h for h in dir(hookspecs) if h.startswith("radwalk_")]
+        unknown = [n for n in dir(module) if n.startswith("radwalk_") and callable(getattr(module, n))
+                   and n not in known]
+        if unknown:
+            raise PluginError(
+                f"{source}: unknown hook {unknown[0]!r}{suggest(unknown[0], known)}; "
+                f"known hooks: {', '.join(sorted(known))}",
+                plugin=source,
+            )
         try:
             self.pm.register(module)
             self.pm.check_pending()
         except pluggy.PluginValidationError as exc:
             self.pm.unregister(module)
             raise PluginError(f"{source}: {exc}", plugin=source) from None
-        unknown = [
-            n for n in dir(module)
-            if n.startswith("radwalk_") and callable(getattr(module, n))
-            and not hasattr(self.pm.hook, n)
-        ]
-        if unknown:
-            self.pm.unregister(module)
-            known = [h for h in dir(self.pm.hook) if h.startswith("radwalk_")]
-            raise PluginError(
-                f"{source}: unknown hook {unknown[0]!r}{suggest(unknown[0], known)}; "
-                f"known hooks: {', '.join(sorted(known))}",
-                plugin=source,
-            )
         self._sources[module] = source
 
     def _load_entry_points(self):

@@ -113,10 +113,11 @@ def _options_digest(options: dict) -> str:
     """Option values; files they name are hashed by content (an edited table is a new grid)."""
     h = hashlib.sha256()
     for name, value in sorted(options.items()):
-        h.update(f"{name}={value}".encode())
         p = Path(str(value)).expanduser()
-        if p.is_file():
-            h.update(p.read_bytes())
+        if p.is_file():  # a file counts by its content, wherever it lies
+            h.update(f"{name}=file:".encode() + hashlib.sha256(p.read_bytes()).digest())
+        else:
+            h.update(f"{name}={value}".encode())
     return h.hexdigest()
 
 

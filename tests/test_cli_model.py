@@ -148,7 +148,7 @@ def test_misspelled_hook_is_rejected(tmp_path, capsys):
     """)
     code, _, err = run(capsys, "plugins", "--plugin", str(p))
     assert code == 2
-    assert "radwalk_opacitys" in err
+    assert "unknown hook 'radwalk_opacitys' (did you mean 'radwalk_opacities'?)" in err
 
 
 def test_plugin_component_is_listed_and_used(tmp_path, capsys):

@@ -169,3 +169,23 @@ def test_evolved_eclipsing_binary_is_refused_by_the_main_sequence_model():
     star = Star.from_user_units("AI Phe A", R, dR, L, dL, T, dT)
     with pytest.raises(ModelError, match=r"no model within the priors reaches R = 1.805 R_sun"):
         fit_one(star, FAST, seed_for(1, star.id))
+
+
+def test_plugin_adds_a_derived_quantity(tmp_path):
+    # The radwalk_derived_quantities hook: a plugin file adds the ratio of the Kelvin-Helmholtz to the
+    # photon diffusion time, which then appears in the summary with its unit.
+    p = tmp_path / "ratio.py"
+    p.write_text(
+        "from pipeline.hookspecs import hookimpl\n"
+        "@hookimpl\n"
+        "def radwalk_derived_quantities(profile, opacity, quantities):\n"
+        "    r = quantities['kelvin_helmholtz_time'] / quantities['diffusion_time']\n"
+        "    return {'kh_over_diffusion': (r, '', 'Kelvin-Helmholtz over diffusion time')}\n"
+    )
+    cfg = FAST.with_changes(plugins=(str(p),))
+    star = Star.from_user_units("derived", 1.0, 0.02, 1.0, 0.05, 5772, 60)
+    summary, _ = fit_one(star, cfg, seed_for(1, star.id))
+    d = summary["derived"]
+    assert "kh_over_diffusion" in d
+    expected = d["kelvin_helmholtz_time"]["p50"] / d["diffusion_time"]["p50"]
+    assert 0.3 < d["kh_over_diffusion"]["p50"] / expected < 3
