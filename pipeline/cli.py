@@ -84,11 +84,11 @@ def cmd_plugins(args):
             for p in c["params"]:
                 unit = f" [{p['unit']}]" if p["unit"] else ""
                 pr = p["prior"]
-                print(
-                    f"  {'':<20}   {p['name']}{unit}: default {p['default']:g}, allowed "
-                    f"[{p['lower']:g}, {p['upper']:g}], prior {pr['kind']}[{pr['lower']:g}, {pr['upper']:g}]"
-                    f"{' (sampled)' if p['sampled'] else ''} - {p['description']}"
-                )
+                prior = f"{pr['kind']}[{pr['lower']:g}, {pr['upper']:g}]"
+                how = (f"sampled, prior {prior}" if p["sampled"]
+                       else f"held at {p['default']:g} unless given a [priors] entry (then default prior {prior})")
+                print(f"  {'':<20}   {p['name']}{unit}: allowed [{p['lower']:g}, {p['upper']:g}]; {how}"
+                      f" - {p['description']}")
             for o in c.get("options", []):
                 print(f"  {'':<20}   option {o['name']}: {o['description']}")
         print()
@@ -133,14 +133,11 @@ def build_parser():
 
     add_fit_parser(sub, common)
     add_check_parser(sub, common)
-    try:  # TODO(lead): drop this guard once runner.py and report.py have landed
-        _optional_commands(sub, common)
-    except ModuleNotFoundError:
-        pass
+    _catalog_commands(sub, common)
     return p
 
 
-def _optional_commands(sub, common):
+def _catalog_commands(sub, common):
     """Catalog-run commands live in their own modules."""
     from .report import add_report_parser
     from .runner import add_demo_parser, add_run_parser
@@ -171,6 +168,11 @@ def main(argv=None):
     except KeyboardInterrupt:
         print("radwalk: interrupted", file=sys.stderr)
         return 130
+    except BrokenPipeError:  # output piped into `head` and the like
+        import os
+
+        os.dup2(os.open(os.devnull, os.O_WRONLY), sys.stdout.fileno())
+        return 0
 
 
 if __name__ == "__main__":

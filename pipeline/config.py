@@ -141,7 +141,13 @@ def _reject_unknown(where: str, keys, allowed):
 
 
 def from_dict(data: dict, base_dir: Path | None = None) -> RunConfig:
-    """Validates a parsed TOML document into a RunConfig."""
+    """Validates a parsed TOML document into a RunConfig.
+
+    A ``[provenance]`` table (what a run writes into its own run.toml) is
+    information, not configuration, and is ignored, so a run's run.toml can
+    be given back with ``--config``.
+    """
+    data = {k: v for k, v in data.items() if k != "provenance"}
     _reject_unknown("", data, tuple(_SECTIONS))
     for sec, allowed in _SECTIONS.items():
         if sec in data and not isinstance(data[sec], dict):

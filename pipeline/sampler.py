@@ -161,7 +161,9 @@ def run_chain(post: Posterior, cfg: SamplerConfig, seed: np.random.SeedSequence,
         n = min(cfg.chunk, cfg.max_steps - steps)
         state = sampler.run_mcmc(state, n, progress=False)
         steps += n
-        tau = emcee.autocorr.integrated_time(sampler.get_chain(), tol=0, quiet=True)
+        with np.errstate(invalid="ignore", divide="ignore"):  # a walker that did not move gives 0/0
+            tau = emcee.autocorr.integrated_time(sampler.get_chain(), tol=0, quiet=True)
+        tau = np.where(np.isfinite(tau), tau, float(steps))  # unknown: as long as the chain
         long_enough = steps > cfg.tau_multiple * np.max(tau)
         stable = old_tau is not None and np.all(np.abs(tau - old_tau) / tau < cfg.tau_change)
         if store:

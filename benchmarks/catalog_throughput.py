@@ -1,0 +1,86 @@
+"""Catalog throughput and memory, measured in one run (issue 4).
+
+    python benchmarks/catalog_throughput.py [--stars 10] [--plots] [--memory 2000]
+
+Runs the same invented catalog (demo stars repeated under new ids) with the
+local pool on 1 and 2 workers and with a Dask LocalCluster on 2 workers,
+interleaved (A B C A B C) so that load from elsewhere on the machine falls on
+all of them, and prints stars per minute and the ratios 2 workers / 1 worker
+and Dask / local.  ``--memory N`` also runs an N-star catalog with a minimal
+sampler and reports the peak resident memory of the main process and of the
+largest worker, against a catalog a tenth the size (flat means the catalog is
+streamed, never held with its chains).
+"""
+
+from __future__ import annotations
+
+import argparse
+import resource
+import tempfile
+import time
+from pathlib import Path
+
+from astropy.table import Table
+
+from pipeline.config import SamplerConfig
+from pipeline.runner import demo_paths, load_run_config, run_catalog
+
+
+def make_catalog(n: int, path: Path):
+    demo = Table.read(demo_paths()["catalog"])
+    good = demo[[not str(i).endswith("24") for i in demo["id"]]]  # leave the giant out
+    t = good[[i % len(good) for i in range(n)]]
+    t["id"] = [f"bench-{i:05d}" for i in range(n)]
+    t.write(path, overwrite=True)
+
+
+def throughput(args, work: Path):
+    cat = work / "bench.ecsv"
+    make_catalog(args.stars, cat)
+    cfg = load_run_config(demo_paths()["config"])
+    rates = {("local", 1): [], ("local", 2): [], ("dask", 2): []}
+    for _ in range(args.repeats):
+        for ex, w in rates:
+            t0 = time.perf_counter()
+            out = run_catalog(cat, work / f"run-{ex}{w}", cfg, executor=ex, workers=w, force=True,
+                              report=False, plots=args.plots, quiet=True)
+            rates[(ex, w)].append(60 * args.stars / (time.perf_counter() - t0))
+            assert out.failed == 0, out.line()
+    mean = {k: sum(v) / len(v) for k, v in rates.items()}
+    for (ex, w), v in rates.items():
+        print(f"{ex:5s} {w} worker(s): {mean[(ex, w)]:6.2f} stars/min  (runs: {', '.join(f'{x:.2f}' for x in v)})")
+    print(f"2 workers / 1 worker (local): {mean[('local', 2)] / mean[('local', 1)]:.2f}  (target >= 1.7)")
+    print(f"dask / local (2 workers):     {mean[('dask', 2)] / mean[('local', 2)]:.2f}  (target within 0.8-1.2)")
+
+
+def memory(n: int, work: Path):
+    tiny = SamplerConfig(walkers=8, chunk=20, max_steps=40, derived_samples=10, optimizer_starts=1)
+    cfg = load_run_config(demo_paths()["config"]).with_changes(sampler=tiny)
+    for size in (n // 10, n):
+        cat = work / f"mem{size}.ecsv"
+        make_catalog(size, cat)
+        t0 = time.perf_counter()
+        out = run_catalog(cat, work / f"mem{size}", cfg, workers=2, force=True, report=False, plots=False,
+                          quiet=True)
+        main_mib = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024
+        kids_mib = resource.getrusage(resource.RUSAGE_CHILDREN).ru_maxrss / 1024
+        print(f"{size} stars: {out.line()} in {time.perf_counter() - t0:.0f} s; peak RSS main {main_mib:.0f} MiB, "
+              f"largest worker {kids_mib:.0f} MiB")
+
+
+def main():
+    ap = argparse.ArgumentParser()
+    ap.add_argument("--stars", type=int, default=10)
+    ap.add_argument("--repeats", type=int, default=2)
+    ap.add_argument("--plots", action="store_true", help="include the per-star plots (as a real run does)")
+    ap.add_argument("--memory", type=int, default=0, metavar="N", help="also measure memory on N stars")
+    args = ap.parse_args()
+    with tempfile.TemporaryDirectory(prefix="radwalk-bench-") as tmp:
+        work = Path(tmp)
+        throughput(args, work)
+        if args.memory:
+            memory(args.memory, work)
+
+
+if __name__ == "__main__":
+    main()
