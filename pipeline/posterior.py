@@ -68,6 +68,10 @@ class Posterior:
             else:
                 self.fixed[p.name] = p.default
         self.params = [declared[n] for n in self.names]
+        # X + Z <= 1 needs checking only where the priors (or fixed values) allow more
+        top = {n: pr.upper for n, pr in zip(self.names, self.priors)}
+        top.update({n: v for n, v in self.fixed.items() if n in ("X", "Z")})
+        self._xz_may_exceed_one = top.get("X", 1.0) + top.get("Z", 1.0) > 1.0
         self.ndim = len(self.names)
         self._lik_names = [p.name for p in stages.likelihood.params]
 
@@ -104,7 +108,8 @@ class Posterior:
         for j, prior in enumerate(self.priors):
             lp = lp + prior.logpdf(theta[:, j])
         vals = self.values(theta)
-        lp = np.where(vals["X"] + vals["Z"] <= 1.0, lp, -np.inf)
+        if self._xz_may_exceed_one:
+            lp = np.where(vals["X"] + vals["Z"] <= 1.0, lp, -np.inf)
         if self.feh is not None:
             with np.errstate(divide="ignore", invalid="ignore"):
                 zx = np.log10(vals["Z"] / vals["X"]) - self.solar_log_zx
@@ -130,7 +135,9 @@ class Posterior:
         with np.errstate(all="ignore"):
             lp = self.log_prior(theta)
             ok = np.isfinite(lp)
-            if ok.any():
+            if ok.all():  # the common case in a converging chain: no fancy indexing
+                out = lp + self.log_likelihood(theta)
+            elif ok.any():
                 out[ok] = lp[ok] + self.log_likelihood(theta[ok])
         out[np.isnan(out)] = -np.inf
         return out

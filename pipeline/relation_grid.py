@@ -69,7 +69,8 @@ class RelationGrid:
         self._strides = np.array([nx * nz, nz, 1])
         self._bits = np.array([[a, b, c] for a in (0, 1) for b in (0, 1) for c in (0, 1)])
         self._offsets = self._bits @ self._strides  # [8]
-        self._top = (self._n - 1)[:, None]
+        self._top = [int(t) for t in self._n - 1]
+        self._inv = 1.0 / self._step
 
     @classmethod
     def build(cls, relation, opacity, rel_kwargs: dict, block: int = _BLOCK) -> RelationGrid:
@@ -91,20 +92,25 @@ class RelationGrid:
         """Interpolated (R cm, L erg/s, inside) — trilinear in log R and log L.
 
         ``inside`` [n] marks points within the grid; R and L are NaN elsewhere.
+        Written with few, whole-array numpy calls: it runs in the sampler's inner loop.
         """
         with np.errstate(divide="ignore", invalid="ignore"):
-            u = (np.stack([np.log10(M_msun), X, np.log10(Z)]) - self._lo[:, None]) / self._step[:, None]
-        inside = np.all((u >= 0) & (u <= self._top), axis=0)
-        i = np.clip(u.astype(int), 0, self._n[:, None] - 2)  # u >= 0 inside, so int() is floor
-        f = u - i
-        base = self._strides @ i  # flat index of the lower corner, [n]
-        corners = self._flat[base[:, None] + self._offsets]  # [n, 8, 2]
-        g = 1.0 - f
-        # weight of corner (a, b, c) = prod over axes of (f if bit set else 1 - f)
-        w0 = np.stack([g[0], f[0]])[self._bits[:, 0]]  # [8, n]
-        w1 = np.stack([g[1], f[1]])[self._bits[:, 1]]
-        w2 = np.stack([g[2], f[2]])[self._bits[:, 2]]
-        v = np.einsum("kn,nkc->nc", w0 * w1 * w2, corners)
+            u0 = (np.log10(M_msun) - self._lo[0]) * self._inv[0]
+            u2 = (np.log10(Z) - self._lo[2]) * self._inv[2]
+        u1 = (np.asarray(X, dtype=float) - self._lo[1]) * self._inv[1]
+        inside = ((u0 >= 0) & (u0 <= self._top[0]) & (u1 >= 0) & (u1 <= self._top[1])
+                  & (u2 >= 0) & (u2 <= self._top[2]))
+        i0 = np.clip(u0.astype(np.intp), 0, self._top[0] - 1)  # u >= 0 inside, so int() is floor
+        i1 = np.clip(u1.astype(np.intp), 0, self._top[1] - 1)
+        i2 = np.clip(u2.astype(np.intp), 0, self._top[2] - 1)
+        f0 = (u0 - i0)[:, None, None, None]
+        f1 = (u1 - i1)[:, None, None]
+        f2 = (u2 - i2)[:, None]
+        base = i0 * self._strides[0] + i1 * self._strides[1] + i2
+        c = self._flat[base[:, None] + self._offsets].reshape(-1, 2, 2, 2, 2)  # [n, M, X, Z, (R, L)]
+        c = c[:, 0] + f0 * (c[:, 1] - c[:, 0])
+        c = c[:, 0] + f1 * (c[:, 1] - c[:, 0])
+        v = c[:, 0] + f2 * (c[:, 1] - c[:, 0])  # [n, 2]
         v[~inside] = np.nan
         return 10.0 ** v[:, 0], 10.0 ** v[:, 1], inside
 

@@ -744,25 +744,15 @@ def _write_summary(out: Path, catalog: Catalog):
 
 
 def _report(out: Path, outcome: RunOutcome):
-    import importlib.util
+    from .report import write_report
 
-    if importlib.util.find_spec("pipeline.report") is None:
-        outcome.report_message = "no HTML report: this radwalk has no report module (pipeline.report)"
-        LOG.warning(outcome.report_message)
-        return
-    try:
-        from .report import write_report
-    except ImportError as exc:
-        outcome.report_message = f"no HTML report: the report module failed to import ({exc})"
-        LOG.warning(outcome.report_message)
-        return
     try:
         written = write_report(out)
     except RadwalkError as exc:  # the results are written; only the report is missing
         outcome.report_message = f"no HTML report: {exc}"
         LOG.warning(outcome.report_message)
         return
-    outcome.report = Path(written) if written else out / "report" / "index.html"
+    outcome.report = Path(written)
     LOG.info("report: %s", outcome.report)
 
 

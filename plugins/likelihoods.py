@@ -11,6 +11,8 @@ Observables that were not measured (NaN) are skipped.
 
 from __future__ import annotations
 
+import math
+
 import numpy as np
 from scipy.special import gammaln
 
@@ -32,16 +34,19 @@ def _floor_params():
 
 
 def _residuals(predicted: dict, observed: Observations, params: dict):
-    """Yields (z, sigma) per measured observable, both shaped like the predictions."""
+    """Yields (z, log sigma) per measured observable, shaped like the predictions."""
     for key in OBSERVABLES:
         value = observed.values.get(key, np.nan)
         if not np.isfinite(value):
             continue
         err = observed.errors[key]
-        floor = np.asarray(params.get(f"floor_{key}", _FLOOR_DEFAULTS[key]))
-        pred = np.asarray(predicted[key], dtype=float)
-        sigma = np.sqrt(err**2 + (floor * value) ** 2)
-        yield (pred - value) / sigma, sigma
+        floor = params.get(f"floor_{key}", _FLOOR_DEFAULTS[key])
+        if np.ndim(floor) == 0:  # the usual case, a fixed floor: scalar arithmetic, off the array path
+            sigma = math.sqrt(err**2 + (float(floor) * value) ** 2)
+            yield (predicted[key] - value) * (1.0 / sigma), math.log(sigma)
+        else:
+            sigma = np.sqrt(err**2 + (np.asarray(floor) * value) ** 2)
+            yield (predicted[key] - value) / sigma, np.log(sigma)
 
 
 def _clean(ll):
@@ -56,10 +61,9 @@ class Gaussian:
     validity = Validity(note="errors assumed Gaussian and independent")
 
     def loglike(self, predicted, observed, **params):
-        n = np.shape(predicted["radius"])
-        ll = np.zeros(n)
-        for z, sigma in _residuals(predicted, observed, params):
-            ll = ll - 0.5 * z**2 - np.log(sigma)
+        ll = np.zeros(np.shape(predicted["radius"]))
+        for z, log_sigma in _residuals(predicted, observed, params):
+            ll -= 0.5 * z * z + log_sigma
         return _clean(ll)
 
 
@@ -76,8 +80,8 @@ class StudentT:
         n = np.shape(predicted["radius"])
         ll = np.zeros(n)
         norm = gammaln((nu + 1) / 2) - gammaln(nu / 2) - 0.5 * np.log(nu * np.pi)
-        for z, sigma in _residuals(predicted, observed, params):
-            ll = ll + norm - np.log(sigma) - 0.5 * (nu + 1) * np.log1p(z**2 / nu)
+        for z, log_sigma in _residuals(predicted, observed, params):
+            ll = ll + norm - log_sigma - 0.5 * (nu + 1) * np.log1p(z**2 / nu)
         return _clean(ll)
 
 
