@@ -482,7 +482,6 @@ def test_demo_catalog_is_reproducible_and_has_its_awkward_rows(tmp_path):
     assert np.isnan(truths["mass"][list(truths["id"]).index("Quillwater 24")])
 
 
-@pytest.mark.slow
 def test_demo_truths_inside_95_percent_intervals(tmp_path):
     # The stars are drawn from the model itself (make_demo.py), so the 95 % intervals must cover the
     # truths for at least 90 % of the converged stars, for each parameter.
