@@ -810,24 +810,21 @@ def demo_recovery(out_dir, truths_path, level: float = 0.95, names=("mass", "X",
 
 
 # -- command line -----------------------------------------------------------------
-def _positive_int(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if v < 1:
-        raise argparse.ArgumentTypeError(f"must be at least 1, got {v}")
-    return v
+def _int_at_least(minimum: int):
+    """An argparse type for whole numbers >= minimum."""
+    def parse(text: str) -> int:
+        try:
+            v = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if v < minimum:
+            raise argparse.ArgumentTypeError(f"must be at least {minimum}, got {v}")
+        return v
+    return parse
 
 
-def _seed(text: str) -> int:
-    try:
-        v = int(text)
-    except ValueError:
-        raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-    if v < 0:
-        raise argparse.ArgumentTypeError(f"must be 0 or more, got {v}")
-    return v
+_positive_int = _int_at_least(1)
+_seed = _int_at_least(0)
 
 
 def load_run_config(path) -> RunConfig:
@@ -838,21 +835,10 @@ def load_run_config(path) -> RunConfig:
 
 
 def config_from_args(args) -> RunConfig:
-    """The run config from --config, then --plugin, --seed and --opacity on top."""
-    config = load_run_config(args.config) if getattr(args, "config", None) else RunConfig()
-    extra = [str(Path(p).expanduser().resolve()) for p in getattr(args, "plugin", None) or ()]
-    if extra:
-        config = config.with_changes(plugins=tuple(dict.fromkeys((*config.plugins, *extra))))
-    if getattr(args, "seed", None) is not None:
-        config = config.with_changes(seed=args.seed)
-    if getattr(args, "opacity", None):
-        names = tuple(n.strip() for n in args.opacity.split(",") if n.strip())
-        if not names:
-            raise ConfigError(f"--opacity needs one or more law names separated by commas, got {args.opacity!r}")
-        stages = dict(config.stages)
-        stages["opacity"] = names[0] if len(names) == 1 else names
-        config = config.with_changes(stages=stages)
-    return config
+    """The run config from --config with --plugin, --seed, --opacity (and --set) on top."""
+    from .fit_cli import config_from_args as from_args
+
+    return from_args(args, validate=False)  # run_catalog checks the stages itself
 
 
 def add_run_parser(sub, common):
