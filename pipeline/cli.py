@@ -26,35 +26,19 @@ def _parse_set(items):
     return out
 
 
-def split_settings(stages_names: dict, settings: dict, registry):
-    """Separates text options (by the chosen components' declarations) from numeric parameters."""
-    from .model import DEFAULTS
-
-    names = {**DEFAULTS, **{k: v for k, v in stages_names.items() if v}}
-    options, params = {}, {}
-    for key, value in settings.items():
-        owner = None
-        for stage, cname in names.items():
-            comp = registry.get(stage, cname)
-            if key in {o.name for o in getattr(comp, "options", ())}:
-                owner = cname
-        if owner:
-            options.setdefault(owner, {})[key] = value
-        else:
-            params[key] = value
-    return names, options, params
-
-
 def cmd_model(args):
-    from .interior import format_summary, model_star
-    from .model import StageSet
-    from .registry import Registry
+    from pathlib import Path
 
-    registry = Registry(plugin_files=args.plugin)
-    names, options, params = split_settings(
-        {"profile": args.profile, "opacity": args.opacity, "relation": args.relation}, _parse_set(args.set), registry
-    )
-    stages = StageSet.build(registry, names, options)
+    from .config import RunConfig
+    from .fit import stages_for
+    from .interior import format_summary, model_star
+
+    stages_named = {k: v for k, v in (("profile", args.profile), ("opacity", args.opacity),
+                                      ("relation", args.relation)) if v}
+    settings = _parse_set(args.set)
+    plugins = tuple(str(Path(p).expanduser().resolve()) for p in args.plugin)
+    stages = stages_for(RunConfig(stages=stages_named, settings=settings, plugins=plugins))
+    params = {k: v for k, v in settings.items() if k not in stages.option_names()}
     interior = model_star(stages, args.mass, args.X, args.Z, params, radius=args.radius, luminosity=args.luminosity)
     if args.profile_out:
         from .io_utils import write_table
