@@ -48,5 +48,6 @@ def test_centrally_condensed_profile(rng):
         rel.append(abs(excess) / integral)
         # far less than a uniform sphere of the same optical radius (tau^2 / 2 in R/c)
         assert integral < 0.5 * tau_c**2 / 2
-    assert rel[1] < 0.1
-    assert rel[1] < rel[0]
+    # the boundary term is ~1.4 R/c whatever tau is, i.e. ~25 % of t at tau 40 and ~11 % at tau 100
+    assert rel[1] < 0.15
+    assert rel[1] < 0.6 * rel[0]
