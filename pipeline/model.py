@@ -9,7 +9,6 @@ like.  The base parameters (mass, X, Z) belong to the host, not to a stage.
 
 from __future__ import annotations
 
-import warnings
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -18,7 +17,7 @@ from . import constants as k
 from . import transport
 from .components import STAGES, BoundOpacity, Profile
 from .composition import X_SUN, Z_SUN
-from .errors import ConfigError, ModelError, ValidityWarning
+from .errors import ConfigError, ModelError
 from .params import Param, Prior
 from .registry import Registry, suggest
 
@@ -205,8 +204,3 @@ def _check_kappa(name: str, kappa):
             f"opacity {name!r} returned {kappa[i, j]!r} inside the star (grid point {j}); "
             "an opacity must be finite and positive"
         )
-
-
-def warn_all(messages):
-    for m in messages:
-        warnings.warn(m, ValidityWarning, stacklevel=2)

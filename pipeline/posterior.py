@@ -76,16 +76,11 @@ class Posterior:
         self._lik_names = [p.name for p in stages.likelihood.params]
 
     # -- parameter vectors ----------------------------------------------
-    @property
-    def all_names(self) -> list:
-        """Names of the sampled parameters followed by those drawn from their priors."""
-        return self.names + [p.name for p, _ in self.independent]
-
     def values(self, theta) -> dict:
         """Sampled and fixed values as a name -> [n] dict.
 
         ``theta`` holds the sampled parameters, optionally followed by the
-        independent (prior-drawn) ones in the order of :attr:`all_names`; those
+        independent (prior-drawn) ones in the order of ``independent``; those
         not given are held at their defaults.
         """
         theta = np.atleast_2d(theta)
