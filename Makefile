@@ -36,6 +36,7 @@ lint: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/sampler_cost.py
+	$(BIN)/python benchmarks/catalog_throughput.py
 
 clean:
 	rm -rf $(VENV) build *.egg-info radwalk-demo
