@@ -32,7 +32,7 @@ test-all: $(STAMP) $(EXAMPLE)
 	MPLCONFIGDIR=$$(mktemp -d) $(BIN)/python -m pytest -q -m ''
 
 lint: $(STAMP)
-	$(BIN)/ruff check pipeline plugins tests benchmarks
+	$(BIN)/ruff check pipeline plugins tests benchmarks examples setup.py
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/sampler_cost.py

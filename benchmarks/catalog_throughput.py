@@ -21,9 +21,8 @@ import time
 from pathlib import Path
 
 from astropy.table import Table
-
-from pipeline.config import SamplerConfig
-from pipeline.runner import demo_paths, load_run_config, run_catalog
+from radwalk.host.config import SamplerConfig
+from radwalk.run.orchestrate import demo_paths, load_run_config, run_catalog
 
 
 def make_catalog(n: int, path: Path):

@@ -20,12 +20,11 @@ import time
 
 import emcee
 import numpy as np
-
-from pipeline.config import RunConfig
-from pipeline.fit import fit_one, stages_for
-from pipeline.posterior import Posterior
-from pipeline.sampler import MOVES
-from pipeline.stars import Star, seed_for
+from radwalk.host.config import RunConfig
+from radwalk.inference.fit import fit_one, stages_for
+from radwalk.inference.posterior import Posterior
+from radwalk.inference.sampler import MOVES
+from radwalk.inference.star import Star, seed_for
 
 WALKERS = 32
 

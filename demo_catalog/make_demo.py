@@ -26,10 +26,10 @@ from astropy.table import MaskedColumn, Table
 HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
-from pipeline import constants as k  # noqa: E402
-from pipeline.composition import X_SUN, Z_SUN  # noqa: E402
-from pipeline.model import StageSet  # noqa: E402
-from pipeline.registry import Registry  # noqa: E402
+from radwalk import constants as k  # noqa: E402
+from radwalk.physics.composition import X_SUN, Z_SUN  # noqa: E402
+from radwalk.model.stages import StageSet  # noqa: E402
+from radwalk.host.registry import Registry  # noqa: E402
 
 SEED = 20261201
 N_REGULAR = 23

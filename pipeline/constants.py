@@ -24,6 +24,16 @@ GM_SUN = _iau.GM_sun.cgs.value  # nominal solar mass parameter, cm^3 s^-2
 M_SUN = GM_SUN / G  # solar mass, g
 TEFF_SUN = 5772.0  # nominal solar effective temperature, K (IAU 2015 B3)
 
+# Present-day solar photosphere, Asplund, Grevesse, Sauval & Scott 2009, ARA&A 47, 481, Table 4.
+X_SUN = 0.7381  # hydrogen mass fraction
+Z_SUN = 0.0134  # metal mass fraction
+
 YEAR = 365.25 * 86400.0  # Julian year, s
 
 CONSTANT_SET = "CODATA 2018, IAU 2015 Resolution B3"
+H_PLANCK = _codata.h.cgs.value  # Planck constant, erg s
+E_CHARGE = _codata.e.esu.value  # elementary charge, esu (statC)
+EV = _codata.e.si.value * 1e7  # electron volt, erg
+MEV = 1e6 * EV  # mega-electron volt, erg
+N_A = _codata.N_A.value  # Avogadro constant, 1/mol
+M_P = _codata.m_p.cgs.value  # proton mass, g

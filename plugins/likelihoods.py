@@ -14,11 +14,10 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from radwalk.host.components import OBSERVABLES, Observations
+from radwalk.host.hookspecs import hookimpl
+from radwalk.host.params import Param, Validity
 from scipy.special import gammaln
-
-from pipeline.components import OBSERVABLES, Observations
-from pipeline.hookspecs import hookimpl
-from pipeline.params import Param, Validity
 
 _FLOOR_DEFAULTS = {"radius": 0.03, "luminosity": 0.05, "teff": 0.01}
 

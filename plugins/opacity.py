@@ -21,10 +21,9 @@ here is used below 3000 K).
 from __future__ import annotations
 
 import numpy as np
-
-from pipeline.constants import M_U, SIGMA_T
-from pipeline.hookspecs import hookimpl
-from pipeline.params import Param, Validity
+from radwalk.constants import M_U, SIGMA_T
+from radwalk.host.hookspecs import hookimpl
+from radwalk.host.params import Param, Validity
 
 KRAMERS_BF = 4.34e25  # cm^2/g at rho = 1 g/cm^3, T = 1 K (Carroll & Ostlie 1996, eq. 9.22)
 KRAMERS_FF = 3.68e22  # cm^2/g at rho = 1 g/cm^3, T = 1 K (Carroll & Ostlie 1996, eq. 9.23)

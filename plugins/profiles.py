@@ -1,19 +1,18 @@
 """Built-in profile models: a polytrope of free index and Eddington's standard model.
 
-Both are thin wrappers around :func:`pipeline.polytrope.polytrope_structure`;
-the physics lives in :mod:`pipeline.lane_emden` and :mod:`pipeline.polytrope`.
+Both are thin wrappers around :func:`radwalk.physics.polytrope.polytrope_structure`;
+the physics lives in :mod:`radwalk.physics.lane_emden` and :mod:`radwalk.physics.polytrope`.
 """
 
 from __future__ import annotations
 
 import numpy as np
-
-from pipeline.components import Profile
-from pipeline.composition import mu as mean_molecular_weight
-from pipeline.errors import ConfigError
-from pipeline.hookspecs import hookimpl
-from pipeline.params import Param, Prior, Validity
-from pipeline.polytrope import eddington_beta, polytrope_structure
+from radwalk.errors import ConfigError
+from radwalk.host.components import Profile
+from radwalk.host.hookspecs import hookimpl
+from radwalk.host.params import Param, Prior, Validity
+from radwalk.physics.composition import mu as mean_molecular_weight
+from radwalk.physics.polytrope import eddington_beta, polytrope_structure
 
 
 def _one_per_sample(a) -> np.ndarray:
@@ -62,7 +61,7 @@ class Polytrope:
         Returns
         -------
         Profile
-            Arrays [k, g] on :data:`pipeline.lane_emden.GRID`.
+            Arrays [k, g] on :data:`radwalk.physics.lane_emden.GRID`.
         """
         p = self.params[0]
         a = np.asarray(n, dtype=float)

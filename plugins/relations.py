@@ -23,14 +23,13 @@ from __future__ import annotations
 from functools import lru_cache
 
 import numpy as np
-
-from pipeline import constants as k
-from pipeline import lane_emden
-from pipeline.composition import X_SUN, Z_SUN, mu
-from pipeline.energy import eps_nuclear
-from pipeline.hookspecs import hookimpl
-from pipeline.params import Validity
-from pipeline.polytrope import eddington_beta
+from radwalk import constants as k
+from radwalk.host.hookspecs import hookimpl
+from radwalk.host.params import Validity
+from radwalk.physics import lane_emden
+from radwalk.physics.composition import X_SUN, Z_SUN, mu
+from radwalk.physics.energy import eps_nuclear
+from radwalk.physics.polytrope import eddington_beta
 
 TEMPLATE_INDEX = 3.0
 _LOG_R_BRACKET = (np.log(0.02 * k.R_SUN), np.log(300.0 * k.R_SUN))
@@ -131,8 +130,8 @@ def _safe_log(v):
 @lru_cache(maxsize=1)
 def _calibration():
     """(C_L, C_E) making the solar-composition 1 M_sun star the nominal Sun."""
-    from pipeline.components import BoundOpacity
-    from plugins.opacity import Combined
+    from radwalk.host.components import BoundOpacity
+    from radwalk.plugins.opacity import Combined
 
     M = np.array([k.M_SUN])
     R = np.array([k.R_SUN])

@@ -12,7 +12,7 @@ import pytest  # noqa: E402
 
 @pytest.fixture(scope="session")
 def registry():
-    from pipeline.registry import Registry
+    from radwalk.host.registry import Registry
 
     return Registry()
 

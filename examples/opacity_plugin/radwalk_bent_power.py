@@ -11,7 +11,7 @@ T^-hot_slope, and at T = T_bend, rho = 1 g/cm^3 it is exactly
 kappa_bend (1 + X).  The factor 1 + X counts free electrons per unit mass, as
 in every opacity of an ionised gas.  There is no electron-scattering floor,
 so in hot, thin gas the law falls below Thomson scattering, which no real
-opacity does; add ``plugins.opacity.thomson(X)`` for anything but a demonstration.
+opacity does; add ``radwalk.plugins.opacity.thomson(X)`` for anything but a demonstration.
 
 Install this folder (``pip install ./examples/opacity_plugin``) and radwalk
 finds the law through the ``radwalk.plugins`` entry point in pyproject.toml;
@@ -21,9 +21,8 @@ or give this file directly: ``radwalk fit --plugin radwalk_bent_power.py``.
 from __future__ import annotations
 
 import numpy as np
-
-from pipeline.hookspecs import hookimpl
-from pipeline.params import Param, Prior, Validity
+from radwalk.host.hookspecs import hookimpl
+from radwalk.host.params import Param, Prior, Validity
 
 # How sharp the bend is: the slope changes over about a factor 10^(1/w) in T
 # either side of T_bend.  Fixed, not a parameter: a sharper bend buys nothing

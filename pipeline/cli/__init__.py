@@ -1,0 +1,1 @@
+"""The ``radwalk`` command line: the only user of argparse."""

@@ -1,0 +1,202 @@
+"""`radwalk fit` (one star from the command line) and `radwalk check-plugin`."""
+
+from __future__ import annotations
+
+import json
+import math
+from pathlib import Path
+
+from radwalk.errors import ConfigError
+from radwalk.host import config as config_mod
+
+
+def add_fit_parser(sub, common):
+    f = sub.add_parser("fit", parents=[common], help="infer one star's interior and timescales from R, L, T_eff")
+    f.add_argument("--id", default="star", help="name of the star (used for its folder)")
+    f.add_argument("--radius", nargs=2, type=float, metavar=("VALUE", "ERR"), help="radius and error, R_sun")
+    f.add_argument("--luminosity", nargs=2, type=float, metavar=("VALUE", "ERR"), help="luminosity and error, L_sun")
+    f.add_argument("--teff", nargs=2, type=float, metavar=("VALUE", "ERR"), help="effective temperature and error, K")
+    f.add_argument("--feh", nargs=2, type=float, metavar=("VALUE", "ERR"), help="[Fe/H] and error, dex (prior on Z)")
+    f.add_argument("--config", help="run configuration (TOML)")
+    f.add_argument("--out", help="output folder (default: radwalk-fit/<id>)")
+    f.add_argument("--seed", type=int, help="random seed (default: the config's, else 1)")
+    f.add_argument("--profile", help="profile model")
+    f.add_argument("--opacity", help="opacity law, or several separated by commas to compare them")
+    f.add_argument("--relation", help="mass-radius-luminosity relation")
+    f.add_argument("--likelihood", help="likelihood")
+    f.add_argument("--set", action="append", metavar="NAME=VALUE", help="hold a parameter fixed or set an option")
+    f.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
+    f.add_argument("--json", action="store_true", help="print the summary as JSON")
+    f.set_defaults(func=cmd_fit)
+
+
+def config_from_args(args, validate: bool = True) -> config_mod.RunConfig:
+    """The run config from --config, with the command-line choices laid over it.
+
+    ``validate`` builds the chosen stages once, so a misspelt component or
+    parameter fails here (catalog runs do that in the runner instead).
+    """
+    from radwalk.cli.main import _parse_set
+
+    cfg = config_mod.load(args.config) if args.config else config_mod.RunConfig()
+    stages = dict(cfg.stages)
+    for stage in ("profile", "relation", "likelihood"):
+        if getattr(args, stage, None):
+            stages[stage] = getattr(args, stage)
+    if getattr(args, "opacity", None):
+        names = tuple(n.strip() for n in args.opacity.split(",") if n.strip())
+        if not names:
+            raise ConfigError(f"--opacity needs one or more law names separated by commas, got {args.opacity!r}")
+        stages["opacity"] = names if len(names) > 1 else names[0]
+    settings = dict(cfg.settings)
+    for key, value in _parse_set(getattr(args, "set", None)).items():
+        try:
+            settings[key] = float(value)
+        except ValueError:
+            settings[key] = value
+    extra = (str(Path(p).expanduser().resolve()) for p in getattr(args, "plugin", None) or ())
+    plugins = tuple(dict.fromkeys((*cfg.plugins, *extra)))
+    seed = cfg.seed if getattr(args, "seed", None) is None else args.seed
+    if seed < 0:
+        raise ConfigError(f"--seed must be a non-negative integer, got {seed}")
+    new = cfg.with_changes(stages=stages, settings=settings, plugins=plugins, seed=seed)
+    if validate:
+        validate_choices(new)
+    return new
+
+
+def validate_choices(cfg: config_mod.RunConfig):
+    """Fails early (one line) on unknown components, options or parameter names."""
+    from radwalk.host.components import Observations
+    from radwalk.inference.fit import stages_for
+    from radwalk.inference.posterior import Posterior
+
+    for op in cfg.opacity_names():
+        stages = stages_for(cfg, op)
+        Posterior(stages, Observations({}, {}), cfg)
+
+
+def _fmt(d: dict) -> str:
+    p16, p50, p84 = d["p16"], d["p50"], d["p84"]
+    if not all(map(math.isfinite, (p16, p50, p84))):
+        return "n/a"
+    if p50 != 0 and (abs(p50) >= 1e5 or abs(p50) < 1e-3):
+        return f"{p50:.4e}  -{p50 - p16:.2e} +{p84 - p50:.2e}"
+    return f"{p50:.4g}  -{p50 - p16:.3g} +{p84 - p50:.3g}"
+
+
+def format_fit(doc: dict) -> str:
+    lines = [f"star {doc['id']}: {doc['status']}" + (f" ({doc['reason']})" if doc["reason"] else "")]
+    if doc["status"] == "failed":
+        return "\n".join(lines)
+    st = doc["stages"]
+    lines.append(f"stages: profile={st['profile']}  opacity={st['opacity']}  relation={st['relation']}  "
+                 f"likelihood={st['likelihood']}")
+    s = doc["sampler"]
+    lines.append(f"sampler: {s['walkers']} walkers x {s['steps']} steps, burn {s['burn']}, thin {s['thin']}, "
+                 f"acceptance {s['acceptance']:.2f}, tau_max {s['tau_max']:.1f}, "
+                 f"converged {'yes' if s['converged'] else 'no'}; posterior-predictive p = {doc['ppc_pvalue']:.2f}")
+    rows = [("parameter", "median  -/+ (16th-84th)", "unit", "")]
+    for name, d in doc["parameters"].items():
+        rows.append((name, _fmt(d), d["unit"], "" if d["constrained"] else "prior-dominated"))
+    rows.append(("", "", "", ""))
+    rows.append(("derived", "median  -/+ (16th-84th)", "unit", ""))
+    for name, d in doc["derived"].items():
+        rows.append((name, _fmt(d), d["unit"], ""))
+    w = [max(len(r[i]) for r in rows) for i in range(4)]
+    lines.append("")
+    for r in rows:
+        lines.append(f"  {r[0]:<{w[0]}}  {r[1]:<{w[1]}}  {r[2]:<{w[2]}}  {r[3]}".rstrip())
+    if doc.get("comparison"):
+        lines.append("")
+        lines.append("opacity comparison (median, 16th-84th):")
+        for op, c in doc["comparison"].items():
+            m, t = c["parameters"]["mass"], c["derived"]["diffusion_time"]
+            lines.append(f"  {op:<20} mass {_fmt(m)} M_sun   diffusion time {_fmt(t)} yr")
+    for wtxt in doc.get("warnings", []):
+        lines.append(f"warning: {wtxt}")
+    return "\n".join(lines)
+
+
+def cmd_fit(args):
+    from radwalk.inference.fit import fit_star, result_document
+    from radwalk.inference.star import Star, safe_folder_name
+
+    cfg = config_from_args(args)
+    obs = {}
+    for key in ("radius", "luminosity", "teff"):
+        pair = getattr(args, key)
+        if pair is not None:
+            obs[key], obs[f"{key}_err"] = pair
+    if not obs:
+        raise ConfigError("give at least one of --radius, --luminosity, --teff (each VALUE ERR)")
+    feh = args.feh or (None, None)
+    from radwalk.errors import CatalogError
+
+    try:
+        star = Star.from_user_units(args.id, **obs, feh=feh[0], feh_err=feh[1])
+    except CatalogError as exc:
+        raise ConfigError(str(exc)) from None
+    out = Path(args.out) if args.out else Path("radwalk-fit") / safe_folder_name(args.id)
+    _check_writable(out)
+    result = fit_star(star, cfg, outdir=out, plots=not args.no_plots)
+    doc = result_document(star, cfg, result)
+    if result.status == "failed":
+        from radwalk.errors import ModelError
+
+        raise ModelError(result.reason)
+    if args.json:
+        print(json.dumps(doc, indent=2))
+    else:
+        print(format_fit(doc))
+        print(f"\noutputs in {out}/ (summary.json, chain.h5, plots)")
+    return 0
+
+
+def _check_writable(folder: Path):
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        probe = folder / ".radwalk-write-test"
+        probe.write_text("")
+        probe.unlink()
+    except OSError as exc:
+        raise ConfigError(f"output folder {folder} is not writable: {exc.strerror or exc}") from None
+
+
+def add_check_parser(sub, common):
+    c = sub.add_parser("check-plugin", parents=[common],
+                       help="check a plugin file, module or component against its stage contract")
+    c.add_argument("target", help="a plugin file, an importable module, or a component name")
+    c.add_argument("--set", action="append", metavar="NAME=VALUE", help="option for the component (e.g. table=FILE)")
+    c.add_argument("--map", metavar="PNG", help="write a log-kappa map of each opacity law (default: <name>-kappa.png)")
+    c.add_argument("--no-map", action="store_true", help="do not write the log-kappa map")
+    c.set_defaults(func=cmd_check)
+
+
+def cmd_check(args):
+    from radwalk.cli.main import _parse_set
+    from radwalk.host.contracts import check_target, plot_log_kappa_map, resolve_target
+
+    options = _parse_set(args.set) or None
+    reports = check_target(args.target, options=options)
+    ok = True
+    for rep in reports:
+        print(rep.format_table())
+        print()
+        ok &= rep.passed
+    if not args.no_map:
+        try:
+            _, entries = resolve_target(args.target)
+        except Exception:  # noqa: BLE001 - the load failure is already in the table
+            entries = []
+        for entry in entries:
+            if entry.stage != "opacity":
+                continue
+            path = Path(args.map) if args.map and len(entries) == 1 else Path(f"{entry.name}-kappa.png")
+            try:
+                plot_log_kappa_map(entry, path, options=options)
+                print(f"log-kappa map: {path}")
+            except Exception as exc:  # noqa: BLE001
+                print(f"log-kappa map not written: {exc}")
+    print("PASS" if ok else "FAIL")
+    return 0 if ok else 1

@@ -1,0 +1,142 @@
+"""Component protocols for the four stages and the arrays they exchange.
+
+Arrays are plain numpy floats in cgs units with a leading sample (walker) axis
+of length ``n``.  Per-sample inputs (X, Z, component parameters) arrive with
+shape ``[n]`` or already shaped to broadcast against the field arrays; use
+:func:`per_sample` to lift a ``[n]`` array against a ``[n, ngrid]`` field.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from typing import Protocol, runtime_checkable
+
+import numpy as np
+from radwalk.host.params import Param, Validity
+
+STAGES = ("profile", "opacity", "relation", "likelihood")
+
+# Observables a likelihood compares, in cgs: radius (cm), luminosity (erg/s), teff (K).
+OBSERVABLES = ("radius", "luminosity", "teff")
+
+
+def per_sample(a, like):
+    """Reshapes a per-sample array ``[n]`` (or scalar) to broadcast against ``like``."""
+    a = np.asarray(a, dtype=float)
+    like = np.asarray(like)
+    if a.ndim == 0 or like.ndim <= 1:
+        return a
+    if a.ndim == 1:
+        return a.reshape(a.shape + (1,) * (like.ndim - 1))
+    return a
+
+
+@dataclass
+class Profile:
+    """A radial structure for ``n`` stars on a common relative grid.
+
+    All 2-D arrays have shape ``[n, ngrid]`` and run from the centre
+    (index 0, r = 0) to the surface (index -1, r = R).
+
+    Attributes
+    ----------
+    r : ndarray, cm
+    m : ndarray, g
+        Mass inside r.
+    rho : ndarray, g/cm^3
+    P : ndarray, dyn/cm^2
+        Total pressure (gas + radiation).
+    T : ndarray, K
+    beta : ndarray
+        Gas pressure over total pressure.
+    M, R : ndarray [n], g and cm
+    X, Z : ndarray [n]
+        Hydrogen and metal mass fractions.
+    """
+
+    r: np.ndarray
+    m: np.ndarray
+    rho: np.ndarray
+    P: np.ndarray
+    T: np.ndarray
+    beta: np.ndarray
+    M: np.ndarray
+    R: np.ndarray
+    X: np.ndarray
+    Z: np.ndarray
+
+    @property
+    def n(self) -> int:
+        return self.r.shape[0]
+
+
+@runtime_checkable
+class Component(Protocol):
+    """What every component declares."""
+
+    name: str
+    description: str
+    params: tuple[Param, ...]
+    validity: Validity
+
+
+@runtime_checkable
+class ProfileModel(Component, Protocol):
+    def profile(self, M, R, X, Z, **params) -> Profile:
+        """Structure of stars of mass M (g), radius R (cm), composition X, Z."""
+
+
+@runtime_checkable
+class OpacityLaw(Component, Protocol):
+    def kappa(self, rho, T, X, Z, **params) -> np.ndarray:
+        """Rosseland-mean opacity, cm^2/g, broadcasting over all inputs."""
+
+
+@runtime_checkable
+class Relation(Component, Protocol):
+    def predict(self, M, X, Z, opacity, **params) -> tuple[np.ndarray, np.ndarray]:
+        """Radius (cm) and luminosity (erg/s) for mass M (g) and composition.
+
+        ``opacity`` is a callable ``kappa(rho, T, X, Z)`` with the opacity
+        law's own parameters already bound (see :class:`BoundOpacity`).
+        """
+
+
+@runtime_checkable
+class Likelihood(Component, Protocol):
+    def loglike(self, predicted: dict, observed: Observations, **params) -> np.ndarray:
+        """Log-likelihood ``[n]`` of predicted observables given the observed ones."""
+
+
+@dataclass(frozen=True)
+class Observations:
+    """Measured observables of one star in cgs; NaN value means not measured.
+
+    ``values`` and ``errors`` map observable names (see OBSERVABLES) to floats.
+    """
+
+    values: dict
+    errors: dict
+
+    def present(self):
+        """Names of the observables that were measured."""
+        return [k for k in OBSERVABLES if np.isfinite(self.values.get(k, np.nan))]
+
+
+class BoundOpacity:
+    """An opacity law with its parameters bound, callable as ``kappa(rho, T, X, Z)``.
+
+    Per-sample parameter arrays ``[n]`` are lifted to broadcast against the
+    field they are evaluated on, so relations and transport need not know the
+    law's parameters.
+    """
+
+    def __init__(self, law: OpacityLaw, params: dict | None = None):
+        self.law = law
+        self.params = dict(params or {})
+
+    def __call__(self, rho, T, X, Z):
+        like = np.broadcast(np.asarray(rho), np.asarray(T))
+        ref = np.empty(like.shape) if like.ndim > 1 else np.asarray(rho)
+        kw = {k: per_sample(v, ref) for k, v in self.params.items()}
+        return self.law.kappa(rho, T, per_sample(X, ref), per_sample(Z, ref), **kw)

@@ -1,0 +1,251 @@
+"""Run configuration: a TOML file read into a frozen, validated RunConfig.
+
+Layout (every section optional)::
+
+    [stages]                # one component per stage; opacity may be a list to compare laws
+    profile = "polytrope"
+    opacity = "combined"
+    relation = "homology"
+    likelihood = "gaussian"
+
+    [settings]              # hold a parameter fixed, or set a component's text option
+    n = 3.0
+    floor_luminosity = 0.08
+
+    [priors.mass]           # override a prior: uniform, log-uniform, normal,
+    kind = "kroupa"         # truncated-normal, salpeter, kroupa
+    lower = 0.3
+    upper = 20
+
+    [sampler]
+    walkers = 32
+    chunk = 200
+    max_steps = 20000
+    tau_multiple = 50
+    tau_change = 0.01
+    optimizer_starts = 4
+    derived_samples = 1500
+
+    [metallicity]
+    solar_z = 0.0134        # Z of the scale on which [Fe/H] is measured
+    solar_x = 0.7381
+
+    [columns]               # catalog column names, if they differ from the defaults
+    id = "name"
+
+    [run]
+    seed = 1
+    plugins = ["my_opacity.py"]
+
+Unknown keys are refused with the closest valid key suggested.
+"""
+
+from __future__ import annotations
+
+import sys
+from dataclasses import asdict, dataclass, field, fields, replace
+from pathlib import Path
+
+from radwalk.constants import X_SUN, Z_SUN
+from radwalk.errors import ConfigError
+from radwalk.host.params import Prior
+from radwalk.host.registry import suggest
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
+
+CATALOG_COLUMNS = ("id", "radius", "radius_err", "luminosity", "luminosity_err", "teff", "teff_err",
+                   "feh", "feh_err")
+
+
+@dataclass(frozen=True)
+class SamplerConfig:
+    walkers: int = 32
+    chunk: int = 200
+    max_steps: int = 20000
+    tau_multiple: float = 50.0
+    tau_change: float = 0.01
+    optimizer_starts: int = 4
+    derived_samples: int = 1500
+
+    def __post_init__(self):
+        for name in ("walkers", "chunk", "max_steps", "optimizer_starts", "derived_samples"):
+            v = getattr(self, name)
+            if not isinstance(v, int) or isinstance(v, bool) or v < 1:
+                raise ConfigError(f"sampler.{name} must be a positive integer, got {v!r}")
+        if self.walkers < 8 or self.walkers % 2:
+            raise ConfigError(f"sampler.walkers must be an even number >= 8, got {self.walkers}")
+        if not self.tau_multiple > 0 or not 0 < self.tau_change < 1:
+            raise ConfigError("sampler.tau_multiple must be > 0 and sampler.tau_change in (0, 1)")
+
+
+@dataclass(frozen=True)
+class RunConfig:
+    """Everything a run needs besides the catalog, validated."""
+
+    stages: dict = field(default_factory=dict)  # stage -> name (opacity may be a tuple of names)
+    settings: dict = field(default_factory=dict)  # name -> float or str
+    priors: dict = field(default_factory=dict)  # name -> Prior
+    sampler: SamplerConfig = field(default_factory=SamplerConfig)
+    solar_z: float = Z_SUN
+    solar_x: float = X_SUN
+    columns: dict = field(default_factory=dict)
+    seed: int = 1
+    plugins: tuple = ()
+
+    def opacity_names(self) -> tuple:
+        op = self.stages.get("opacity", "combined")
+        return tuple(op) if isinstance(op, (list, tuple)) else (op,)
+
+    def stage_names(self, opacity: str | None = None) -> dict:
+        names = {k: v for k, v in self.stages.items() if k != "opacity"}
+        names["opacity"] = opacity or self.opacity_names()[0]
+        return names
+
+    def with_changes(self, **kw) -> RunConfig:
+        return replace(self, **kw)
+
+    def to_dict(self) -> dict:
+        d = {
+            "stages": {k: list(v) if isinstance(v, tuple) else v for k, v in self.stages.items()},
+            "settings": dict(self.settings),
+            "priors": {k: p.to_dict() for k, p in self.priors.items()},
+            "sampler": asdict(self.sampler),
+            "metallicity": {"solar_z": self.solar_z, "solar_x": self.solar_x},
+            "columns": dict(self.columns),
+            "run": {"seed": self.seed, "plugins": list(self.plugins)},
+        }
+        return d
+
+
+_SECTIONS = {
+    "stages": ("profile", "opacity", "relation", "likelihood"),
+    "settings": None,
+    "priors": None,
+    "sampler": tuple(f.name for f in fields(SamplerConfig)),
+    "metallicity": ("solar_z", "solar_x"),
+    "columns": CATALOG_COLUMNS,
+    "run": ("seed", "plugins"),
+}
+_PRIOR_KEYS = ("kind", "lower", "upper", "mean", "sigma")
+
+
+def _reject_unknown(where: str, keys, allowed):
+    for key in keys:
+        if key not in allowed:
+            raise ConfigError(
+                f"unknown key {where}{key!r}{suggest(key, allowed)}; allowed here: {', '.join(allowed)}"
+            )
+
+
+def from_dict(data: dict, base_dir: Path | None = None) -> RunConfig:
+    """Validates a parsed TOML document into a RunConfig.
+
+    A ``[provenance]`` table (what a run writes into its own run.toml) is
+    information, not configuration, and is ignored, so a run's run.toml can
+    be given back with ``--config``.
+    """
+    data = {k: v for k, v in data.items() if k != "provenance"}
+    _reject_unknown("", data, tuple(_SECTIONS))
+    for sec, allowed in _SECTIONS.items():
+        if sec in data and not isinstance(data[sec], dict):
+            raise ConfigError(f"[{sec}] must be a table")
+        if allowed is not None and sec in data:
+            _reject_unknown(f"[{sec}] ", data[sec], allowed)
+    stages = dict(data.get("stages", {}))
+    if isinstance(stages.get("opacity"), list):
+        stages["opacity"] = tuple(stages["opacity"])
+        if not stages["opacity"]:
+            raise ConfigError("[stages] opacity list is empty")
+    for k, v in stages.items():
+        vals = v if isinstance(v, tuple) else (v,)
+        if not all(isinstance(x, str) for x in vals):
+            raise ConfigError(f"[stages] {k} must name a component (a string), got {v!r}")
+    priors = {}
+    for name, spec in data.get("priors", {}).items():
+        if not isinstance(spec, dict):
+            raise ConfigError(f"[priors.{name}] must be a table with kind, lower, upper")
+        _reject_unknown(f"[priors.{name}] ", spec, _PRIOR_KEYS)
+        if "kind" not in spec:
+            raise ConfigError(f"[priors.{name}] needs a kind")
+        try:
+            priors[name] = Prior(
+                spec["kind"], float(spec.get("lower", float("-inf"))), float(spec.get("upper", float("inf"))),
+                None if "mean" not in spec else float(spec["mean"]),
+                None if "sigma" not in spec else float(spec["sigma"]),
+            )
+        except ConfigError as exc:
+            raise ConfigError(f"[priors.{name}]: {exc}") from None
+    try:
+        sampler = SamplerConfig(**data.get("sampler", {}))
+    except TypeError as exc:
+        raise ConfigError(f"[sampler]: {exc}") from None
+    met = data.get("metallicity", {})
+    run = data.get("run", {})
+    plugins = tuple(
+        str((base_dir / p).resolve()) if base_dir and not Path(p).is_absolute() else str(p)
+        for p in run.get("plugins", [])
+    )
+    seed = run.get("seed", 1)
+    if not isinstance(seed, int) or seed < 0:
+        raise ConfigError(f"[run] seed must be a non-negative integer, got {seed!r}")
+    settings = dict(data.get("settings", {}))
+    for k, v in settings.items():
+        if not isinstance(v, (int, float, str)) or isinstance(v, bool):
+            raise ConfigError(f"[settings] {k} must be a number or a string, got {v!r}")
+    return RunConfig(
+        stages=stages, settings=settings, priors=priors, sampler=sampler,
+        solar_z=float(met.get("solar_z", Z_SUN)), solar_x=float(met.get("solar_x", X_SUN)),
+        columns=dict(data.get("columns", {})), seed=seed, plugins=plugins,
+    )
+
+
+def load(path) -> RunConfig:
+    """Reads and validates a run.toml."""
+    path = Path(path)
+    try:
+        text = path.read_text()
+    except OSError as exc:
+        raise ConfigError(f"cannot read config {path}: {exc.strerror}") from None
+    try:
+        data = tomllib.loads(text)
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(f"config {path} is not valid TOML: {exc}") from None
+    return from_dict(data, base_dir=path.parent)
+
+
+def _toml_value(v):
+    if isinstance(v, bool):
+        return "true" if v else "false"
+    if isinstance(v, (int, float)):
+        return repr(v) if v == v and abs(v) != float("inf") else ('inf' if v > 0 else '-inf') if v == v else "nan"
+    if isinstance(v, (list, tuple)):
+        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
+    if v is None:
+        return '""'
+    s = str(v).replace("\\", "\\\\").replace('"', '\\"')
+    return f'"{s}"'
+
+
+def to_toml(d: dict, prefix: str = "") -> str:
+    """Writes nested plain data as TOML (tables after scalars, as TOML requires)."""
+    lines = []
+    scalars = {k: v for k, v in d.items() if not isinstance(v, dict)}
+    tables = {k: v for k, v in d.items() if isinstance(v, dict)}
+    for k, v in scalars.items():
+        if v is None:
+            continue
+        lines.append(f"{_key(k)} = {_toml_value(v)}")
+    for k, v in tables.items():
+        name = f"{prefix}.{_key(k)}" if prefix else _key(k)
+        body = to_toml(v, name)
+        if any(not isinstance(x, dict) for x in v.values()) or not v:
+            lines.append(f"\n[{name}]")
+        lines.append(body)
+    return "\n".join(x for x in lines if x != "")
+
+
+def _key(k: str) -> str:
+    return k if k.replace("_", "").replace("-", "").isalnum() else f'"{k}"'

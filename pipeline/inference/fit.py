@@ -1,0 +1,371 @@
+"""The per-star task: (star, config, seed) -> StarResult, a pure function.
+
+Samples the posterior, computes the transport quantities on every thinned
+sample (up to ``sampler.derived_samples`` of them, evenly spaced), writes the
+star's folder (chain.h5, plots, summary.json last, which marks it done) and
+returns a small picklable summary.
+"""
+
+from __future__ import annotations
+
+import time
+import traceback
+import warnings
+from dataclasses import dataclass, field
+from functools import lru_cache
+from pathlib import Path
+
+import numpy as np
+from radwalk import __version__
+from radwalk import constants as k
+from radwalk.errors import CatalogError, ConfigError, ModelError, PluginError, RadwalkError, ValidityWarning
+from radwalk.host.config import RunConfig
+from radwalk.host.registry import Registry
+from radwalk.inference.posterior import Posterior
+from radwalk.inference.sampler import Chain, run_chain
+from radwalk.inference.star import Star, seed_for
+from radwalk.model.stages import StageSet
+from radwalk.physics.composition import mu
+from radwalk.physics.transport import QUANTITIES
+from radwalk.results.files import write_json
+
+PERCENTILES = (16.0, 50.0, 84.0)
+BAND_PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)
+BAND_FIELDS = ("rho", "T", "kappa", "mean_free_path", "diffusion_time_cumulative")
+PPC_POOR = 0.01  # posterior-predictive p-value below which the fit is flagged as poor
+NO_REACH_SIGMA = 5.0  # an observable this many sigma from the best model cannot be reached
+
+# derived quantity -> (output unit, factor from the transport module's unit)
+OUTPUT_UNITS = {
+    "radius": ("R_sun", 1.0 / k.R_SUN),
+    "luminosity": ("L_sun", 1.0 / k.L_SUN),
+    "teff": ("K", 1.0),
+    "mu": ("", 1.0),
+    "photosphere_radius": ("R_sun", 1.0 / k.R_SUN),
+    "eddington_luminosity": ("L_sun", 1.0 / k.L_SUN),
+}
+LABELS = {"radius": r"$R\,[R_\odot]$", "luminosity": r"$L\,[L_\odot]$", "teff": r"$T_\mathrm{eff}\,[\mathrm{K}]$",
+          "mu": r"$\mu$"}
+TIMESCALES = ("diffusion_time", "diffusion_time_radiative", "kelvin_helmholtz_time", "dynamical_time")
+
+
+def derived_unit(name: str) -> str:
+    if name in OUTPUT_UNITS:
+        return OUTPUT_UNITS[name][0]
+    if name in PLUGIN_UNITS:
+        return PLUGIN_UNITS[name]
+    return QUANTITIES[name][0]
+
+
+def derived_label(name: str) -> str:
+    if name in LABELS:
+        return LABELS[name]
+    unit = derived_unit(name)
+    base = QUANTITIES[name][2] if name in QUANTITIES else name.replace("_", " ")
+    return f"{base}$\\,[\\mathrm{{{unit.replace(' ', '')}}}]$" if unit else base
+
+
+@dataclass
+class FitProducts:
+    """Everything the plots and the report need about one fitted star (in memory)."""
+
+    star: Star
+    opacity: str
+    chain: Chain
+    param_names: list  # sampled parameters first (as in chain), then those drawn from their priors
+    param_labels: list
+    param_units: list
+    priors: list
+    samples: np.ndarray  # [N, ndim] thinned
+    derived: dict  # name -> [N] in output units
+    r_rel: np.ndarray  # [g]
+    bands: dict  # field -> [5, g]
+    observed: dict  # name -> (value, err) in R_sun, L_sun, K
+
+
+@dataclass
+class StarResult:
+    """What a per-star task returns (picklable, small)."""
+
+    id: str
+    status: str  # "ok", "not-converged", "failed"
+    reason: str = ""
+    summary: dict = field(default_factory=dict)
+    seconds: float = 0.0
+
+
+@lru_cache(maxsize=8)
+def registry_for(plugins: tuple) -> Registry:
+    """One registry per plugin set and process (workers reuse it across stars)."""
+    return Registry(plugin_files=plugins)
+
+
+def stages_for(config: RunConfig, opacity: str | None = None) -> StageSet:
+    reg = registry_for(tuple(config.plugins))
+    names = config.stage_names(opacity)
+    probe = StageSet.build(reg, names)  # to learn which settings are options
+    opts = {}
+    for key, value in config.settings.items():
+        comp = probe.option_names().get(key)
+        if comp is not None:
+            opts.setdefault(comp.name, {})[key] = value
+    stages = StageSet.build(reg, names, opts)
+    law = stages.opacity.name
+    check_opacity_contract(tuple(config.plugins), law, tuple(sorted(opts.get(law, {}).items())))
+    return stages
+
+
+PROBE_CHECKS = ("configure", "call", "shape", "finite", "positive")
+PROBE_POINTS = 24
+
+
+@lru_cache(maxsize=32)
+def check_opacity_contract(plugins: tuple, name: str, options: tuple = ()) -> None:
+    """Raises PluginError naming the law and its first bad point if it breaks its contract.
+
+    A coarse run of the plugin checker (pipeline/plugin_check.py) over the
+    law's own validity range, once per process and law (~0.2 s): a law that
+    returns NaN, zero, negative or wrongly shaped values is named at once,
+    instead of surfacing as a sampler that finds no finite posterior.
+    """
+    from radwalk.host.contracts import check_component
+
+    reg = registry_for(plugins)
+    entry = reg.entries["opacity"][name]
+    report = check_component(entry, grid_points=PROBE_POINTS, options=dict(options) or None, registry=reg)
+    bad = [r for r in report.rows if not r.passed and r.check in PROBE_CHECKS]
+    if bad:
+        raise PluginError(
+            f"opacity {name!r} ({entry.source}) fails the {bad[0].check!r} check inside its own validity "
+            f"range: {bad[0].detail}; `radwalk check-plugin` prints the full table",
+            plugin=entry.source,
+        )
+
+
+def _percentiles(x):
+    x = x[np.isfinite(x)]
+    if x.size == 0:
+        return [float("nan")] * 3
+    return [float(v) for v in np.percentile(x, PERCENTILES)]
+
+
+def _evenly(n_total: int, n_keep: int):
+    if n_total <= n_keep:
+        return np.arange(n_total)
+    return np.linspace(0, n_total - 1, n_keep).round().astype(int)
+
+
+def check_reachable(post: Posterior, theta_map):
+    """Raises ModelError when the best model is still far from a measured observable."""
+    pred = post.predict(theta_map[None, :])
+    obs = post.observed
+    for key in obs.present():
+        p = float(pred[key][0])
+        v, e = obs.values[key], obs.errors[key]
+        if not np.isfinite(p) or abs(p - v) / e > NO_REACH_SIGMA and abs(p - v) / v > 0.1:
+            from radwalk.inference.star import USER_UNITS
+
+            f, unit, label = USER_UNITS[key]
+            best = "none" if not np.isfinite(p) else f"{p / f:.4g} {unit}"
+            raise ModelError(
+                f"no model within the priors reaches {label} = {v / f:.4g} {unit} "
+                f"(closest: {best}, with relation {post.stages.relation.name!r})"
+            )
+
+
+def derive(post: Posterior, samples: np.ndarray):
+    """Transport quantities and predictions on the given samples; also profile bands."""
+    vals = post.values(samples)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", ValidityWarning)
+        pred = post.stages.predict(vals)
+        ok = np.isfinite(pred["radius"]) & np.isfinite(pred["luminosity"])
+        vals_ok = {kk: (v[ok] if np.ndim(v) else v) for kk, v in vals.items()}
+        prof, tr = post.stages.structure(vals_ok, pred["radius"][ok], pred["luminosity"][ok])
+    notes = [str(w.message) for w in caught]
+    notes += post.stages.validity_messages(vals_ok, prof)
+    derived = {}
+    for key in ("radius", "luminosity", "teff"):
+        derived[key] = pred[key][ok] * OUTPUT_UNITS[key][1]
+    derived["mu"] = np.broadcast_to(mu(vals_ok["X"], vals_ok["Z"]), (int(ok.sum()),)).copy()
+    for key, v in tr.scalars.items():
+        derived[key] = v * OUTPUT_UNITS.get(key, (None, 1.0))[1]
+    derived.update(plugin_quantities(post.stages, prof, vals_ok, tr, set(derived)))
+    fields = {"rho": prof.rho, "T": prof.T, **tr.fields}
+    bands = {f: np.percentile(fields[f], BAND_PERCENTILES, axis=0) for f in BAND_FIELDS}
+    return derived, bands, prof.r[0] / prof.R[0], notes, ok
+
+
+# units of quantities that plugins add through the radwalk_derived_quantities hook
+PLUGIN_UNITS: dict = {}
+
+
+def plugin_quantities(stages, profile, values, tr, taken: set) -> dict:
+    """Quantities added by plugins' ``radwalk_derived_quantities`` hooks, name -> [n]."""
+    hook = stages.registry.derived_hooks()
+    if not hook.get_hookimpls():
+        return {}
+    out = {}
+    for extra in hook(profile=profile, opacity=stages.bound_opacity(values), quantities=dict(tr.scalars)):
+        for name, item in (extra or {}).items():
+            try:
+                arr, unit, _desc = item
+            except (TypeError, ValueError):
+                raise PluginError(f"derived quantity {name!r} must be (values, unit, description)") from None
+            if name in taken or name in out:
+                raise PluginError(f"derived quantity {name!r} is already defined; choose another name")
+            arr = np.broadcast_to(np.asarray(arr, dtype=float), (profile.n,)).copy()
+            PLUGIN_UNITS[name] = str(unit)
+            out[name] = arr
+    return out
+
+
+def ppc_pvalue(post: Posterior, samples, rng: np.random.Generator):
+    """Posterior-predictive p-value of chi^2: replicated data as extreme as the observed."""
+    pred = post.predict(samples)
+    obs = post.observed
+    lik = post.stages.likelihood
+    floors = {p.name: p.default for p in lik.params}
+    floors.update({kk: v for kk, v in post.fixed.items() if kk.startswith("floor_")})
+    chi_obs = np.zeros(samples.shape[0])
+    chi_rep = np.zeros(samples.shape[0])
+    for key in obs.present():
+        v, e = obs.values[key], obs.errors[key]
+        sigma = np.sqrt(e**2 + (floors.get(f"floor_{key}", 0.0) * v) ** 2)
+        rep = pred[key] + sigma * rng.standard_normal(samples.shape[0])
+        chi_obs += ((v - pred[key]) / sigma) ** 2
+        chi_rep += ((rep - pred[key]) / sigma) ** 2
+    good = np.isfinite(chi_obs)
+    return float(np.mean(chi_rep[good] >= chi_obs[good])) if good.any() else float("nan")
+
+
+def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity: str | None = None,
+            chain_path=None) -> tuple[dict, FitProducts]:
+    """Samples one star under one opacity law; returns its summary and in-memory products."""
+    stages = stages_for(config, opacity)
+    post = Posterior(stages, star.observations(), config, feh=star.feh)
+    chain_seed, ppc_seed, prior_seed = seed.spawn(3)
+    chain = run_chain(post, config.sampler, chain_seed, chain_path=chain_path)
+    check_reachable(post, chain.map_theta)
+    flat, flat_lp = chain.flat()
+    indep = post.draw_independent(np.random.default_rng(prior_seed), flat.shape[0])
+    flat = np.column_stack([flat, indep])
+    idx = _evenly(flat.shape[0], config.sampler.derived_samples)
+    derived, bands, r_rel, notes, ok = derive(post, flat[idx])
+    pval = ppc_pvalue(post, flat[idx], np.random.default_rng(ppc_seed))
+
+    warn = list(dict.fromkeys(notes))
+    if not chain.converged:
+        warn.append(f"not converged: {chain.reason}")
+    if np.isfinite(pval) and pval < PPC_POOR:
+        warn.append(f"poor fit: posterior-predictive p-value {pval:.3g} < {PPC_POOR}")
+    if not ok.all():
+        warn.append(f"{int((~ok).sum())} of {ok.size} samples gave no model star and were left out")
+
+    all_params = post.params + [p for p, _ in post.independent]
+    all_priors = post.priors + [pr for _, pr in post.independent]
+    widths = np.concatenate([post.prior_widths(), indep.std(axis=0) if indep.size else np.zeros(0)])
+    params = {}
+    ess = chain.effective_sample_size()
+    for j, p in enumerate(all_params):
+        x = flat[:, j]
+        p16, p50, p84 = _percentiles(x)
+        ratio = float(np.std(x) / widths[j]) if widths[j] > 0 else float("nan")
+        sampled = j < post.ndim
+        params[p.name] = {
+            "unit": p.unit, "p16": p16, "p50": p50, "p84": p84,
+            "map": float(chain.map_theta[j]) if sampled else float("nan"),
+            "tau": float(chain.tau[j]) if sampled else float("nan"),
+            "ess": float(ess[j]) if sampled else float(x.size), "prior": all_priors[j].describe(),
+            "posterior_over_prior_width": ratio, "constrained": bool(ratio < 0.5),
+            "drawn_from_prior": not sampled,
+        }
+    map_derived = {}
+    try:
+        md, _, _, _, mok = derive(post, chain.map_theta[None, :])
+        if mok.all():
+            map_derived = {kk: float(v[0]) for kk, v in md.items()}
+    except RadwalkError:
+        pass
+    dq = {}
+    for key, v in derived.items():
+        p16, p50, p84 = _percentiles(v)
+        dq[key] = {"unit": derived_unit(key), "p16": p16, "p50": p50, "p84": p84,
+                   "map": map_derived.get(key, float("nan"))}
+    unconstrained = [n for n, d in params.items() if not d["constrained"]]
+    summary = {
+        "opacity": stages.opacity.name,
+        "stages": {s: c.name for s, c in stages.components().items()},
+        "parameters": params,
+        "fixed": {kk: float(v) for kk, v in post.fixed.items()},
+        "derived": dq,
+        "sampler": {
+            "walkers": config.sampler.walkers, "steps": chain.steps, "burn": chain.burn, "thin": chain.thin,
+            "acceptance": chain.acceptance, "tau_max": float(np.max(chain.tau)), "converged": chain.converged,
+            "reason": chain.reason, "samples": int(flat.shape[0]), "derived_samples": int(idx.size),
+            "map_log_prob": chain.map_log_prob,
+        },
+        "ppc_pvalue": pval,
+        "unconstrained": unconstrained,
+        "warnings": warn,
+    }
+    products = FitProducts(
+        star=star, opacity=stages.opacity.name, chain=chain, param_names=[p.name for p in all_params],
+        param_labels=[p.latex or p.name for p in all_params], param_units=[p.unit for p in all_params],
+        priors=all_priors, samples=flat, derived=derived, r_rel=r_rel, bands=bands,
+        observed=star.user_values(),
+    )
+    return summary, products
+
+
+def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> StarResult:
+    """The per-star task.  Never raises for a star's own problems: they become status 'failed'."""
+    t0 = time.perf_counter()
+    folder = Path(outdir) if outdir else None
+    try:
+        with warnings.catch_warnings():
+            warnings.simplefilter("ignore", ValidityWarning)  # collected into the summary instead
+            fits, products = {}, {}
+            for j, op in enumerate(config.opacity_names()):
+                chain_path = None
+                if folder is not None:
+                    chain_path = folder / ("chain.partial.h5" if j == 0 else f"chain-{op}.partial.h5")
+                # every law gets the same fresh seed, so a comparison is paired and order-free
+                fits[op], products[op] = fit_one(star, config, seed_for(config.seed, star.id), op, chain_path)
+        primary = config.opacity_names()[0]
+        summary = dict(fits[primary])
+        if len(fits) > 1:
+            summary["comparison"] = {op: {"parameters": f["parameters"], "derived": f["derived"],
+                                          "warnings": f["warnings"]} for op, f in fits.items()}
+        status = "ok" if summary["sampler"]["converged"] else "not-converged"
+        reason = "" if status == "ok" else summary["sampler"]["reason"]
+        if folder is not None:
+            for j, op in enumerate(config.opacity_names()):
+                part = folder / ("chain.partial.h5" if j == 0 else f"chain-{op}.partial.h5")
+                part.replace(folder / part.name.replace(".partial", ""))
+            if plots:
+                from radwalk.report.figures import write_star_plots
+
+                summary["plots"] = write_star_plots(products[primary], folder,
+                                                    comparison=products if len(products) > 1 else None)
+    except (CatalogError, ModelError, ConfigError) as exc:
+        status, reason, summary = "failed", str(exc), {}
+    except PluginError as exc:
+        status, reason, summary = "failed", f"plugin error: {exc}", {}
+    except Exception as exc:  # noqa: BLE001 - one star's crash must not stop a catalog
+        tb = traceback.format_exception_only(type(exc), exc)[-1].strip()
+        status, reason, summary = "failed", f"internal error: {tb}", {}
+    result = StarResult(star.id, status, reason, summary, time.perf_counter() - t0)
+    if folder is not None:
+        write_json(folder / "summary.json", result_document(star, config, result))
+    return result
+
+
+def result_document(star: Star, config: RunConfig, result: StarResult) -> dict:
+    obs = {kk: {"value": v, "error": e} for kk, (v, e) in star.user_values().items()}
+    return {
+        "id": star.id, "status": result.status, "reason": result.reason,
+        "observed": obs, "feh": list(star.feh) if star.feh else None,
+        "seed": config.seed, "radwalk_version": __version__, "seconds": result.seconds,
+        **result.summary,
+    }

@@ -1,0 +1,147 @@
+"""The log-posterior of one star: priors from the components, likelihood of R, L, T_eff.
+
+``Posterior(theta[nwalkers, ndim]) -> [nwalkers]`` is vectorised over walkers
+(emcee's ``vectorize=True``), returns ``-inf`` outside the prior support or
+where the relation finds no star, and never NaN.
+"""
+
+from __future__ import annotations
+
+import numpy as np
+from radwalk.errors import ConfigError
+from radwalk.host.components import Observations
+from radwalk.host.config import RunConfig
+from radwalk.host.params import Prior
+from radwalk.model.stages import StageSet
+
+
+class Posterior:
+    """Log-posterior over the sampled parameters of a StageSet.
+
+    Parameters
+    ----------
+    stages : StageSet
+    observed : Observations
+        Measured radius (cm), luminosity (erg/s), T_eff (K) and their errors.
+    config : RunConfig
+        Prior overrides and fixed settings.
+    feh : tuple of float, optional
+        Measured [Fe/H] and its error (dex): a prior on log10(Z/X) relative to
+        the solar ratio of ``config.solar_z / config.solar_x``.
+    """
+
+    def __init__(self, stages: StageSet, observed: Observations, config: RunConfig,
+                 feh: tuple[float, float] | None = None):
+        self.stages = stages
+        self.observed = observed
+        self.feh = feh
+        self.solar_log_zx = float(np.log10(config.solar_z / config.solar_x))
+        declared = {p.name: p for p in stages.all_params()}
+        numeric = {k: v for k, v in config.settings.items() if k not in stages.option_names()}
+        for name in list(numeric) + list(config.priors):
+            if name not in declared:
+                stages.param(name)  # raises with a suggestion
+        self.fixed = {}
+        self.names = []
+        self.priors: list[Prior] = []
+        # Profile parameters never reach the likelihood (the relation predicts R and L without the
+        # profile), so their posterior is their prior: they are drawn from it directly after
+        # sampling instead of being random-walked by emcee, which only lengthens the chain.
+        self.independent: list[tuple] = []
+        profile_names = {p.name for p in stages.profile.params}
+        for p in stages.all_params():
+            if p.name in numeric and p.name not in config.priors:
+                self.fixed[p.name] = p.check(numeric[p.name])
+            elif p.sampled or p.name in config.priors:
+                prior = config.priors.get(p.name, p.default_prior())
+                if prior.lower < p.lower or prior.upper > p.upper:
+                    raise ConfigError(
+                        f"prior on {p.name!r} [{prior.lower:g}, {prior.upper:g}] reaches outside its allowed "
+                        f"range [{p.lower:g}, {p.upper:g}] {p.unit}".rstrip()
+                    )
+                if p.name in profile_names:
+                    self.independent.append((p, prior))
+                else:
+                    self.names.append(p.name)
+                    self.priors.append(prior)
+            else:
+                self.fixed[p.name] = p.default
+        self.params = [declared[n] for n in self.names]
+        # X + Z <= 1 needs checking only where the priors (or fixed values) allow more
+        top = {n: pr.upper for n, pr in zip(self.names, self.priors)}
+        top.update({n: v for n, v in self.fixed.items() if n in ("X", "Z")})
+        self._xz_may_exceed_one = top.get("X", 1.0) + top.get("Z", 1.0) > 1.0
+        self.ndim = len(self.names)
+        self._lik_names = [p.name for p in stages.likelihood.params]
+
+    # -- parameter vectors ----------------------------------------------
+    def values(self, theta) -> dict:
+        """Sampled and fixed values as a name -> [n] dict.
+
+        ``theta`` holds the sampled parameters, optionally followed by the
+        independent (prior-drawn) ones in the order of ``independent``; those
+        not given are held at their defaults.
+        """
+        theta = np.atleast_2d(theta)
+        # fixed values stay scalars: every stage broadcasts them against the [n] arrays
+        vals = dict(self.fixed)
+        for j, name in enumerate(self.names):
+            vals[name] = theta[:, j]
+        for j, (p, _) in enumerate(self.independent, start=self.ndim):
+            vals[p.name] = theta[:, j] if theta.shape[1] > j else p.default
+        return vals
+
+    def draw_independent(self, rng: np.random.Generator, size: int) -> np.ndarray:
+        """Draws of the prior-only parameters, [size, n_independent]."""
+        cols = [prior.sample(rng, size) for _, prior in self.independent]
+        return np.column_stack(cols) if cols else np.zeros((size, 0))
+
+    def log_prior(self, theta):
+        theta = np.atleast_2d(theta)
+        lp = np.zeros(theta.shape[0])
+        for j, prior in enumerate(self.priors):
+            lp = lp + prior.logpdf(theta[:, j])
+        vals = self.values(theta)
+        if self._xz_may_exceed_one:
+            lp = np.where(vals["X"] + vals["Z"] <= 1.0, lp, -np.inf)
+        if self.feh is not None:
+            with np.errstate(divide="ignore", invalid="ignore"):
+                zx = np.log10(vals["Z"] / vals["X"]) - self.solar_log_zx
+            lp = lp - 0.5 * ((zx - self.feh[0]) / self.feh[1]) ** 2
+            lp = np.where(np.isfinite(lp), lp, -np.inf)
+        return lp
+
+    def predict(self, theta) -> dict:
+        return self.stages.predict(self.values(theta))
+
+    def log_likelihood(self, theta, predicted=None):
+        vals = self.values(theta)
+        pred = predicted if predicted is not None else self.stages.predict(vals)
+        kw = {n: vals[n] for n in self._lik_names}
+        ll = self.stages.likelihood.loglike(pred, self.observed, **kw)
+        # a relation that finds no star (NaN) or returns nonsense (<= 0) gives no likelihood
+        physical = (pred["radius"] > 0) & (pred["luminosity"] > 0)
+        return np.where(physical, ll, -np.inf)
+
+    def __call__(self, theta):
+        theta = np.atleast_2d(theta)
+        out = np.full(theta.shape[0], -np.inf)
+        with np.errstate(all="ignore"):
+            lp = self.log_prior(theta)
+            ok = np.isfinite(lp)
+            if ok.all():  # the common case in a converging chain: no fancy indexing
+                out = lp + self.log_likelihood(theta)
+            elif ok.any():
+                out[ok] = lp[ok] + self.log_likelihood(theta[ok])
+        out[np.isnan(out)] = -np.inf
+        return out
+
+    def sample_prior(self, rng: np.random.Generator, size: int):
+        """Draws from the (independent) priors, keeping only points with a finite posterior."""
+        cols = [p.sample(rng, size) for p in self.priors]
+        return np.column_stack(cols) if cols else np.zeros((size, 0))
+
+    def prior_widths(self):
+        """A scale per parameter: the standard deviation of its prior."""
+        rng = np.random.default_rng(0)
+        return self.sample_prior(rng, 4000).std(axis=0)

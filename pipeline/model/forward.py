@@ -1,0 +1,164 @@
+"""One star's interior for given mass and composition: what `radwalk model` prints."""
+
+from __future__ import annotations
+
+import warnings
+from dataclasses import dataclass
+
+import numpy as np
+from astropy.table import Table
+from radwalk import constants as k
+from radwalk.errors import ConfigError, ModelError, ValidityWarning
+from radwalk.model.stages import StageSet
+from radwalk.physics.composition import check_composition, mu
+
+# JSON key -> (scalar quantity or callable, unit for the human table, label)
+SUMMARY_ROWS = (
+    ("mass_msun", "M_sun", "mass"),
+    ("radius_rsun", "R_sun", "radius"),
+    ("luminosity_lsun", "L_sun", "luminosity"),
+    ("teff_k", "K", "effective temperature"),
+    ("mu", "", "mean molecular weight"),
+    ("central_density_g_cm3", "g/cm^3", "central density"),
+    ("central_temperature_k", "K", "central temperature"),
+    ("central_pressure_dyn_cm2", "dyn/cm^2", "central pressure"),
+    ("mean_free_path_center_cm", "cm", "photon mean free path at centre"),
+    ("photosphere_radius_rsun", "R_sun", "photosphere (tau = 2/3)"),
+    ("diffusion_time_yr", "yr", "photon diffusion time"),
+    ("diffusion_time_radiative_yr", "yr", "  through radiative layers only"),
+    ("diffusion_time_uniform_yr", "yr", "  uniform-density estimate"),
+    ("kelvin_helmholtz_time_yr", "yr", "Kelvin-Helmholtz time"),
+    ("dynamical_time_s", "s", "dynamical time"),
+    ("eddington_luminosity_lsun", "L_sun", "Eddington luminosity"),
+    ("eddington_ratio", "", "L / L_Edd"),
+)
+
+
+@dataclass
+class Interior:
+    summary: dict  # JSON-ready
+    profile_table: Table
+    warnings: list
+
+
+def model_star(stages: StageSet, mass: float, X: float, Z: float, settings: dict | None = None,
+               radius: float | None = None, luminosity: float | None = None) -> Interior:
+    """Builds the interior of one star.
+
+    Parameters
+    ----------
+    mass : float, M_sun
+    X, Z : float
+    settings : dict
+        Component parameter values by name (checked against their ranges).
+    radius : float, optional, R_sun
+        Replaces the relation's radius.
+    luminosity : float, optional, L_sun
+        Replaces the relation's luminosity.
+    """
+    if not np.isfinite(mass) or mass <= 0:
+        raise ConfigError(f"mass = {mass} M_sun is not allowed; the mass must be finite and positive")
+    check_composition(X, Z)
+    for name, v in (("radius", radius), ("luminosity", luminosity)):
+        if v is not None and (not np.isfinite(v) or v <= 0):
+            raise ConfigError(f"{name} = {v} is not allowed; it must be finite and positive")
+    values = stages.defaults()
+    for name, v in (settings or {}).items():
+        values[name] = stages.param(name).check(v)
+    values.update(mass=np.array([mass]), X=np.array([X]), Z=np.array([Z]))
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", ValidityWarning)
+        pred = stages.predict(values, use_grid=False)  # one star: solve exactly, no grid to build
+        R = pred["radius"] if radius is None else np.array([radius * k.R_SUN])
+        L = pred["luminosity"] if luminosity is None else np.array([luminosity * k.L_SUN])
+        if not (np.isfinite(R[0]) and np.isfinite(L[0])):
+            raise ModelError(
+                f"relation {stages.relation.name!r} finds no main-sequence star of {mass:g} M_sun with "
+                f"X = {X:g}, Z = {Z:g}; give --radius and --luminosity to model it anyway"
+            )
+        prof, tr = stages.structure(values, R, L)
+    notes = list(dict.fromkeys([str(w.message) for w in caught] + stages.validity_messages(values, prof)))
+    s = tr.scalars
+    r_rel = prof.r[0] / prof.R[0]
+    teff = (L[0] / (4 * np.pi * R[0] ** 2 * k.SIGMA_SB)) ** 0.25
+    summary = {
+        "mass_msun": float(mass),
+        "radius_rsun": float(R[0] / k.R_SUN),
+        "luminosity_lsun": float(L[0] / k.L_SUN),
+        "teff_k": float(teff),
+        "X": float(X),
+        "Z": float(Z),
+        "mu": float(mu(X, Z)),
+        "central_density_g_cm3": float(s["central_density"][0]),
+        "central_temperature_k": float(s["central_temperature"][0]),
+        "central_pressure_dyn_cm2": float(s["central_pressure"][0]),
+        "mean_free_path_center_cm": float(s["mean_free_path_center"][0]),
+        "photosphere_radius_rsun": float(s["photosphere_radius"][0] / k.R_SUN),
+        "diffusion_time_yr": float(s["diffusion_time"][0]),
+        "diffusion_time_radiative_yr": float(s["diffusion_time_radiative"][0]),
+        "diffusion_time_uniform_yr": float(s["diffusion_time_uniform"][0]),
+        "kelvin_helmholtz_time_yr": float(s["kelvin_helmholtz_time"][0]),
+        "dynamical_time_s": float(s["dynamical_time"][0]),
+        "eddington_luminosity_lsun": float(s["eddington_luminosity"][0] / k.L_SUN),
+        "eddington_ratio": float(s["eddington_ratio"][0]),
+        "convective_zones": tr.zones(0, r_rel),
+        "radius_source": "given" if radius is not None else stages.relation.name,
+        "luminosity_source": "given" if luminosity is not None else stages.relation.name,
+        "stages": {st: c.name for st, c in stages.components().items()},
+        "parameters": {p.name: float(np.atleast_1d(values[p.name])[0]) for p in stages.component_params()},
+        "warnings": notes,
+    }
+    return Interior(summary, profile_table(prof, tr, 0), notes)
+
+
+def profile_table(prof, tr, i: int) -> Table:
+    """The radial profile of sample i as an astropy Table with units."""
+    import astropy.units as u
+
+    f = tr.fields
+    t = Table()
+    t["r_over_R"] = prof.r[i] / prof.R[i]
+    t["m_over_M"] = prof.m[i] / prof.M[i]
+    t["rho"] = prof.rho[i] * u.g / u.cm**3
+    t["T"] = prof.T[i] * u.K
+    t["P"] = prof.P[i] * u.dyn / u.cm**2
+    t["kappa"] = f["kappa"][i] * u.cm**2 / u.g
+    t["mean_free_path"] = f["mean_free_path"][i] * u.cm
+    t["tau"] = f["tau"][i]
+    t["luminosity"] = f["luminosity"][i] / k.L_SUN * u.Lsun
+    t["nabla_rad"] = f["nabla_rad"][i]
+    t["nabla_ad"] = f["nabla_ad"][i]
+    t["zone"] = np.where(tr.convective[i], "convective", "radiative")
+    t["diffusion_time_cumulative"] = f["diffusion_time_cumulative"][i] * u.yr
+    t.meta["comments"] = [
+        "radwalk radial profile: centre first; tau is the optical depth inward from the outermost point;",
+        "diffusion_time_cumulative is the mean photon first-passage time from the centre to r.",
+    ]
+    return t
+
+
+def format_summary(summary: dict) -> str:
+    """Aligned human table with units."""
+    lines = []
+    st = summary["stages"]
+    lines.append(f"stages: profile={st['profile']}  opacity={st['opacity']}  relation={st['relation']}")
+    if summary["parameters"]:
+        lines.append("parameters: " + "  ".join(f"{k_}={v:g}" for k_, v in summary["parameters"].items()))
+    lines.append(f"composition: X={summary['X']:g}  Z={summary['Z']:g}  Y={1 - summary['X'] - summary['Z']:g}")
+    lines.append("")
+    width = max(len(label) for _, _, label in SUMMARY_ROWS)
+    for key, unit, label in SUMMARY_ROWS:
+        v = summary[key]
+        txt = f"{v:.4g}" if abs(v) < 1e5 or v == 0 else f"{v:.4e}"
+        note = ""
+        if key == "radius_rsun" and summary["radius_source"] == "given":
+            note = "  (given)"
+        if key == "luminosity_lsun" and summary["luminosity_source"] == "given":
+            note = "  (given)"
+        lines.append(f"  {label:<{width}}  {txt:>12}  {unit}{note}")
+    zones = summary["convective_zones"]
+    ztxt = ", ".join(f"{a:.3f}-{b:.3f}" for a, b in zones) if zones else "none"
+    lines.append(f"  {'convective zones (r/R)':<{width}}  {ztxt}")
+    for w in summary["warnings"]:
+        lines.append(f"warning: {w}")
+    return "\n".join(lines)

@@ -1,0 +1,205 @@
+"""The chosen stages of a run and the forward model they make together.
+
+:class:`StageSet` holds one component per stage, the text options they were
+configured with and the values of their parameters.  It answers the two
+questions everything else asks: what R, L and T_eff a set of (M, X, Z,
+parameters) predicts, and what the interior and its transport quantities look
+like.  The base parameters (mass, X, Z) belong to the host, not to a stage.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+from radwalk import constants as k
+from radwalk.constants import X_SUN, Z_SUN
+from radwalk.errors import ConfigError, ModelError
+from radwalk.host.components import STAGES, BoundOpacity, Profile
+from radwalk.host.params import Param, Prior
+from radwalk.host.registry import Registry, suggest
+from radwalk.physics import transport
+
+DEFAULTS = {"profile": "polytrope", "opacity": "combined", "relation": "homology", "likelihood": "gaussian"}
+
+BASE_PARAMS = (
+    Param("mass", "M_sun", 0.05, 150.0, 1.0, "stellar mass",
+          prior=Prior("log-uniform", 0.1, 60.0), sampled=True, latex=r"$M\,[M_\odot]$", owner="the star"),
+    Param("X", "", 0.0, 1.0, X_SUN, "hydrogen mass fraction",
+          prior=Prior("uniform", 0.60, 0.78), sampled=True, latex=r"$X$", owner="the star"),
+    Param("Z", "", 0.0, 0.2, Z_SUN, "metal mass fraction",
+          prior=Prior("log-uniform", 0.001, 0.05), sampled=True, latex=r"$Z$", owner="the star"),
+)
+
+
+def teff_from(R, L):
+    """Effective temperature (K) from radius (cm) and luminosity (erg/s)."""
+    with np.errstate(invalid="ignore", divide="ignore"):
+        return (L / (4.0 * np.pi * R**2 * k.SIGMA_SB)) ** 0.25
+
+
+@dataclass
+class StageSet:
+    """One component per stage, configured, with the parameter declarations they bring."""
+
+    registry: Registry
+    profile: object
+    opacity: object
+    relation: object
+    likelihood: object
+    options: dict = field(default_factory=dict)  # component name -> {option: value}
+
+    @classmethod
+    def build(cls, registry: Registry, names: dict | None = None, options: dict | None = None) -> StageSet:
+        """Picks components by name (defaults for stages not named) and configures their options."""
+        names = {**DEFAULTS, **(names or {})}
+        unknown = set(names) - set(STAGES)
+        if unknown:
+            raise ConfigError(f"unknown stage {sorted(unknown)[0]!r}; stages: {', '.join(STAGES)}")
+        chosen = {s: registry.get(s, names[s]) for s in STAGES}
+        options = {name: dict(v) for name, v in (options or {}).items()}
+        for stage, comp in chosen.items():
+            opts = options.get(comp.name)
+            if opts:
+                declared = {o.name for o in getattr(comp, "options", ())}
+                for key in opts:
+                    if key not in declared:
+                        raise ConfigError(f"{stage} {comp.name!r} has no option {key!r}{suggest(key, declared)}")
+                chosen[stage] = comp.configure(**opts)
+        self = cls(registry, **chosen, options=options)
+        self._check_name_clashes()
+        return self
+
+    def components(self):
+        return {s: getattr(self, s) for s in STAGES}
+
+    def component_params(self) -> list[Param]:
+        return [p for s in STAGES for p in getattr(self, s).params]
+
+    def all_params(self) -> list[Param]:
+        return list(BASE_PARAMS) + self.component_params()
+
+    def _check_name_clashes(self):
+        seen = {}
+        for p in self.all_params():
+            if p.name in seen:
+                raise ConfigError(
+                    f"parameter name {p.name!r} is declared by both {seen[p.name]} and {p.owner}; "
+                    "rename one of them"
+                )
+            seen[p.name] = p.owner
+
+    def option_names(self) -> dict:
+        return {o.name: comp for comp in self.components().values() for o in getattr(comp, "options", ())}
+
+    def param(self, name: str) -> Param:
+        for p in self.all_params():
+            if p.name == name:
+                return p
+        names = [p.name for p in self.all_params()]
+        raise ConfigError(
+            f"unknown parameter {name!r}{suggest(name, names)}; parameters of these stages: {', '.join(names)}"
+        )
+
+    def defaults(self) -> dict:
+        return {p.name: p.default for p in self.all_params()}
+
+    def stage_kwargs(self, stage: str, values: dict) -> dict:
+        return {p.name: values[p.name] for p in getattr(self, stage).params}
+
+    def bound_opacity(self, values: dict) -> BoundOpacity:
+        return BoundOpacity(self.opacity, self.stage_kwargs("opacity", values))
+
+    # -- forward model ---------------------------------------------------
+    def predict(self, values: dict, use_grid: bool = True):
+        """Predicted radius (cm), luminosity (erg/s) and T_eff (K) for per-sample values.
+
+        Relations that declare ``gridded = True`` are interpolated on a
+        precomputed grid (see :mod:`radwalk.model.grid`) when their and
+        the opacity law's parameters are the same for every sample.
+        """
+        m_sun = np.atleast_1d(np.asarray(values["mass"], dtype=float))
+        n = m_sun.size
+        X = np.broadcast_to(np.asarray(values["X"], dtype=float), (n,))
+        Z = np.broadcast_to(np.asarray(values["Z"], dtype=float), (n,))
+        rel_kw = self.stage_kwargs("relation", values)
+        grid = self._grid(values) if use_grid else None
+        if grid is None:
+            R, L = self.relation.predict(m_sun * k.M_SUN, X, Z, self.bound_opacity(values), **rel_kw)
+        else:
+            R, L, inside = grid(m_sun, X, Z)
+            if not inside.all():
+                out = ~inside
+                sub = {name: (v[out] if np.ndim(v) and np.size(v) == n else v) for name, v in values.items()}
+                R[out], L[out] = self.relation.predict(
+                    m_sun[out] * k.M_SUN, X[out], Z[out], self.bound_opacity(sub),
+                    **self.stage_kwargs("relation", sub))
+        return {"radius": R, "luminosity": L, "teff": teff_from(R, L)}
+
+    def _grid(self, values: dict):
+        if not getattr(self.relation, "gridded", False):
+            return None
+        fixed = {}
+        for stage in ("opacity", "relation"):
+            for name, v in self.stage_kwargs(stage, values).items():
+                v = np.asarray(v, dtype=float)
+                if v.size > 1 and np.ptp(v) > 0:
+                    return None  # a sampled parameter: solve directly
+                fixed[name] = float(v.ravel()[0])
+        key = tuple(sorted(fixed.items()))
+        cache = self.__dict__.setdefault("_grids", {})
+        if key not in cache:
+            from radwalk.model.grid import grid_for
+
+            okw = {p.name: fixed[p.name] for p in self.opacity.params}
+            rkw = {p.name: fixed[p.name] for p in self.relation.params}
+            cache[key] = grid_for(self.relation, self.opacity, okw, rkw, BoundOpacity(self.opacity, okw),
+                                  self.options.get(self.opacity.name, {}))
+        return cache[key]
+
+    def structure(self, values: dict, R, L) -> tuple[Profile, transport.Transport]:
+        """Interior profile and transport quantities of stars with the given R (cm) and L (erg/s)."""
+        M = np.atleast_1d(np.asarray(values["mass"], dtype=float)) * k.M_SUN
+        n = M.size
+        X = np.broadcast_to(np.asarray(values["X"], dtype=float), (n,)).copy()
+        Z = np.broadcast_to(np.asarray(values["Z"], dtype=float), (n,)).copy()
+        R = np.broadcast_to(np.asarray(R, dtype=float), (n,)).copy()
+        L = np.broadcast_to(np.asarray(L, dtype=float), (n,)).copy()
+        prof = self.profile.profile(M, R, X, Z, **self.stage_kwargs("profile", values))
+        opacity = self.bound_opacity(values)
+        tr = transport.compute(prof, opacity, L)
+        _check_kappa(self.opacity.name, tr.fields["kappa"])
+        return prof, tr
+
+    def validity_messages(self, values: dict, profile: Profile | None = None) -> list[str]:
+        """Plain-language notes where a component is used outside its stated range."""
+        from radwalk.host.validity import fraction_outside, outside_validity
+
+        msgs = []
+        for stage in ("relation", "profile"):
+            comp = getattr(self, stage)
+            msg = outside_validity(comp, X=values["X"], Z=values["Z"], mass=values["mass"],
+                                   name=f"{stage} {comp.name!r}")
+            if msg:
+                msgs.append(msg)
+        if profile is not None:
+            args = (self.opacity, profile.rho, profile.T, profile.X[:, None], profile.Z[:, None])
+            weights = np.maximum(np.diff(profile.m, axis=1, prepend=0.0), 0.0)
+            if fraction_outside(*args, weights)[0] > OPACITY_MASS_THRESHOLD:
+                msgs.append(outside_validity(*args, weights, name=f"opacity {self.opacity.name!r}"))
+        return msgs
+
+
+# An opacity law is reported as out of range when more than this fraction of the star's mass
+# lies outside its stated (rho, T) range: a polytrope's outermost layers always do.
+OPACITY_MASS_THRESHOLD = 0.01
+
+
+def _check_kappa(name: str, kappa):
+    bad = ~np.isfinite(kappa) | (kappa <= 0)
+    if bad.any():
+        i, j = np.argwhere(bad)[0]
+        raise ModelError(
+            f"opacity {name!r} returned {kappa[i, j]!r} inside the star (grid point {j}); "
+            "an opacity must be finite and positive"
+        )

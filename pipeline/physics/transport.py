@@ -1,0 +1,207 @@
+"""Radiative-transport quantities of a profile under an opacity law.
+
+Everything is vectorised over the leading sample axis of a
+:class:`radwalk.host.components.Profile`.  Definitions (cgs):
+
+* mean free path lambda = 1 / (kappa rho);
+* optical depth tau(r) = integral_r^R kappa rho dr, photosphere at tau = 2/3;
+* photon diffusion time: the mean first-passage time of a photon from the
+  centre to the surface.  With the diffusion coefficient D = c / (3 kappa rho)
+  (an isotropic walk with <l^2> = 2 lambda^2), solving div(D grad t) = -1
+  with t(R) = 0 gives t_diff = (1/c) integral_0^R kappa rho r dr;
+  ``diffusion_time_radiative`` integrates over radiative layers only
+  (convection carries the energy elsewhere);
+* the uniform-density estimate R^2 kappa_mean rho_mean / c (tau^2 steps of
+  lambda; the mean first-passage time of a uniform sphere is half of it);
+* Kelvin-Helmholtz time |Omega| / (2 L): the thermal energy of an ideal
+  monatomic gas in virial equilibrium, -Omega/2, over the luminosity, with
+  Omega = -integral G m dm / r from the profile (for a polytrope
+  -3/(5-n) G M^2/R).  Other texts use G M^2/(R L) (larger by 4/3 for n = 3);
+* dynamical time sqrt(R^3 / (G M));
+* Eddington luminosity 4 pi G M c / kappa_es with the Thomson opacity;
+* convective layers by the Schwarzschild criterion nabla_rad > nabla_ad, with
+  nabla_rad = 3 kappa L(r) P / (16 pi a c G m T^4), L(r) from pp + CNO energy
+  generation over the profile scaled to the star's luminosity, and nabla_ad
+  of a gas + radiation mixture with gas-pressure fraction beta.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from radwalk import constants as k
+from radwalk.host.components import Profile
+from radwalk.physics.energy import eps_nuclear
+
+PHOTOSPHERE_TAU = 2.0 / 3.0
+
+# name -> (unit, description, LaTeX label)
+QUANTITIES = {
+    "central_density": ("g / cm3", "central density", r"$\rho_c$"),
+    "central_temperature": ("K", "central temperature", r"$T_c$"),
+    "central_pressure": ("dyn / cm2", "central pressure", r"$P_c$"),
+    "mean_free_path_center": ("cm", "photon mean free path at the centre", r"$\lambda_c$"),
+    "photosphere_radius": ("cm", "radius where tau = 2/3", r"$r_{\tau=2/3}$"),
+    "diffusion_time": ("yr", "photon diffusion time, centre to surface", r"$t_\mathrm{diff}$"),
+    "diffusion_time_radiative": ("yr", "photon diffusion time through radiative layers only",
+                                 r"$t_\mathrm{diff,rad}$"),
+    "diffusion_time_uniform": ("yr", "uniform-density estimate R^2 kappa rho / c", r"$t_\mathrm{diff,uni}$"),
+    "kelvin_helmholtz_time": ("yr", "Kelvin-Helmholtz time |Omega|/(2L)", r"$t_\mathrm{KH}$"),
+    "dynamical_time": ("s", "dynamical time sqrt(R^3/GM)", r"$t_\mathrm{dyn}$"),
+    "eddington_luminosity": ("erg / s", "Eddington luminosity (Thomson opacity)", r"$L_\mathrm{Edd}$"),
+    "eddington_ratio": ("", "L / L_Edd", r"$L/L_\mathrm{Edd}$"),
+    "core_convective_radius": ("", "outer edge of a convective core in r/R (0: none)", r"$r_\mathrm{cc}/R$"),
+    "envelope_convective_radius": ("", "inner edge of a convective envelope in r/R (1: none)",
+                                   r"$r_\mathrm{ce}/R$"),
+    "convective_mass_fraction": ("", "fraction of the mass in convective layers", r"$M_\mathrm{conv}/M$"),
+}
+
+
+@dataclass
+class Transport:
+    """Transport quantities of n samples: scalars ``[n]`` and fields ``[n, ngrid]``."""
+
+    scalars: dict
+    fields: dict
+    convective: np.ndarray  # bool [n, ngrid]
+
+    def zones(self, i: int, r_rel: np.ndarray) -> list[list[float]]:
+        """Convective zones of sample i as [inner, outer] in r/R."""
+        return convective_zones(self.convective[i], r_rel)
+
+
+def cumulative(y, x):
+    """Trapezoid cumulative integral along the last axis, starting at 0."""
+    out = np.zeros(np.broadcast(y, x).shape)
+    out[..., 1:] = np.cumsum(0.5 * (y[..., 1:] + y[..., :-1]) * np.diff(x, axis=-1), axis=-1)
+    return out
+
+
+def nabla_ad(beta):
+    """Adiabatic gradient of an ideal gas + radiation mixture (0.4 at beta = 1, 0.25 at beta -> 0)."""
+    g = (1.0 - beta) * (4.0 + beta) / beta**2
+    return (1.0 + g) / (2.5 + 4.0 * g)
+
+
+def convective_zones(mask, r_rel):
+    """Contiguous convective runs of a boolean mask as [[inner, outer], ...] in r/R."""
+    zones = []
+    idx = np.flatnonzero(np.diff(np.concatenate([[0], mask.astype(int), [0]])))
+    for start, stop in zip(idx[::2], idx[1::2]):
+        inner = 0.0 if start == 0 else 0.5 * (r_rel[start - 1] + r_rel[start])
+        outer = 1.0 if stop == mask.size else 0.5 * (r_rel[stop - 1] + r_rel[stop])
+        zones.append([float(inner), float(outer)])
+    return zones
+
+
+def photosphere(r, tau):
+    """Radius where the inward optical depth reaches 2/3, per sample (cm)."""
+    n = r.shape[0]
+    below = tau < PHOTOSPHERE_TAU  # outermost points
+    j = np.argmax(below, axis=1)  # first index with tau < 2/3
+    j = np.clip(j, 1, r.shape[1] - 1)
+    rows = np.arange(n)
+    t0, t1 = tau[rows, j - 1], tau[rows, j]
+    r0, r1 = r[rows, j - 1], r[rows, j]
+    w = np.clip((t0 - PHOTOSPHERE_TAU) / np.where(t0 > t1, t0 - t1, 1.0), 0.0, 1.0)
+    out = r0 + w * (r1 - r0)
+    # A star thinner than tau = 2/3 through its centre has no photosphere inside it.
+    return np.where(tau[:, 0] >= PHOTOSPHERE_TAU, out, 0.0)
+
+
+def compute(profile: Profile, opacity, L) -> Transport:
+    """All transport quantities for a profile, a bound opacity law and luminosities L [n] (erg/s)."""
+    p = profile
+    X2, Z2 = p.X[:, None], p.Z[:, None]
+    L = np.asarray(L, dtype=float)
+    kappa = opacity(p.rho, p.T, p.X, p.Z)
+    with np.errstate(divide="ignore", over="ignore"):
+        krho = kappa * p.rho
+        mfp = 1.0 / krho
+    r = p.r
+    # optical depth inward from the outermost grid point
+    tau_from_centre = cumulative(krho, r)
+    tau = tau_from_centre[:, -1:] - tau_from_centre
+    t_cum = cumulative(krho * r, r) / k.C  # first-passage time from the centre to r, s
+
+    # luminosity profile from energy generation, scaled to the star's L
+    eps = eps_nuclear(p.rho, p.T, X2, Z2)
+    Lcum = cumulative(eps, p.m)
+    total = Lcum[:, -1:]
+    # Where the profile is too cool to burn anything, spread L over the mass instead.
+    share = np.where(total > 0, Lcum / np.where(total > 0, total, 1.0), p.m / p.M[:, None])
+    Lr = L[:, None] * share
+    with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+        lm = Lr / p.m
+        # centre: L(r)/m(r) tends to the local L per unit mass
+        lm[:, 0] = np.where(total[:, 0] > 0, L * eps[:, 0] / np.where(total[:, 0] > 0, total[:, 0], 1.0),
+                            L / p.M)
+        grad_rad = 3.0 * kappa * lm * p.P / (16.0 * np.pi * k.A_RAD * k.C * k.G * p.T**4)
+    grad_ad = nabla_ad(p.beta)
+    conv = grad_rad > grad_ad
+
+    dm = np.diff(p.m, axis=1)
+    conv_mid = conv[:, 1:] & conv[:, :-1]
+    conv_mass = (dm * conv_mid).sum(axis=1) / p.M
+
+    rad_integrand = np.where(conv, 0.0, krho * r)
+    mass_w = np.diff(p.m, axis=1)
+    kappa_mid = 0.5 * (kappa[:, 1:] + kappa[:, :-1])
+    kappa_mean = (kappa_mid * mass_w).sum(axis=1) / mass_w.sum(axis=1)
+    rho_mean = 3.0 * p.M / (4.0 * np.pi * p.R**3)
+
+    omega = -cumulative(k.G * p.m * 4.0 * np.pi * p.rho * r, r)[:, -1]
+
+    r_rel = r / p.R[:, None]
+    core = np.where(conv[:, 0], _first_false_edge(conv, r_rel), 0.0)
+    env = np.where(conv[:, -1], _last_false_edge(conv, r_rel), 1.0)
+
+    kappa_es = k.SIGMA_T * (1.0 + p.X) / (2.0 * k.M_U)
+    L_edd = 4.0 * np.pi * k.G * p.M * k.C / kappa_es
+    scalars = {
+        "central_density": p.rho[:, 0],
+        "central_temperature": p.T[:, 0],
+        "central_pressure": p.P[:, 0],
+        "mean_free_path_center": mfp[:, 0],
+        "photosphere_radius": photosphere(r, tau),
+        "diffusion_time": t_cum[:, -1] / k.YEAR,
+        "diffusion_time_radiative": cumulative(rad_integrand, r)[:, -1] / k.C / k.YEAR,
+        "diffusion_time_uniform": p.R**2 * kappa_mean * rho_mean / k.C / k.YEAR,
+        "kelvin_helmholtz_time": np.abs(omega) / (2.0 * L) / k.YEAR,
+        "dynamical_time": np.sqrt(p.R**3 / (k.G * p.M)),
+        "eddington_luminosity": L_edd,
+        "eddington_ratio": L / L_edd,
+        "core_convective_radius": core,
+        "envelope_convective_radius": env,
+        "convective_mass_fraction": conv_mass,
+    }
+    fields = {
+        "kappa": kappa,
+        "mean_free_path": mfp,
+        "tau": tau,
+        "diffusion_time_cumulative": t_cum / k.YEAR,
+        "luminosity": Lr,
+        "nabla_rad": grad_rad,
+        "nabla_ad": grad_ad,
+        "eps_nuclear": eps,
+    }
+    return Transport(scalars, fields, conv)
+
+
+def _first_false_edge(mask, r_rel):
+    """r/R between the last convective point of a central run and the next one."""
+    j = np.argmin(mask, axis=1)  # first radiative index
+    j = np.where(mask.all(axis=1), mask.shape[1] - 1, j)
+    rows = np.arange(mask.shape[0])
+    return np.where(mask.all(axis=1), 1.0, 0.5 * (r_rel[rows, j - 1] + r_rel[rows, j]))
+
+
+def _last_false_edge(mask, r_rel):
+    """r/R between the last radiative point below a surface run and the first convective one."""
+    rev = mask[:, ::-1]
+    j_rev = np.argmin(rev, axis=1)  # first radiative index counted from the surface
+    j = mask.shape[1] - j_rev  # first convective index of the surface run
+    j = np.clip(j, 1, mask.shape[1] - 1)
+    rows = np.arange(mask.shape[0])
+    return np.where(mask.all(axis=1), 0.0, 0.5 * (r_rel[rows, j - 1] + r_rel[rows, j]))

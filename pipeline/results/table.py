@@ -1,0 +1,199 @@
+"""The summary table of a catalog run: one row a star, built from the stars' summary.json documents.
+
+Columns, in order: ``id``, ``folder`` (the star's folder name under
+``stars/``), ``status``, ``reason``, ``warnings``
+(joined with " | "), ``opacity``, ``unconstrained``; the observed values and
+their errors (``radius_obs``, ``radius_obs_err``, ... in R_sun, L_sun, K;
+``feh_obs``, ``feh_obs_err`` in dex); for every sampled parameter
+``<name>_p16``, ``<name>_p50``, ``<name>_p84`` and ``<name>_map``; for every
+derived quantity ``<name>_p16``, ``<name>_p50``, ``<name>_p84``; then
+``converged``, ``acceptance``, ``tau_max``, ``ess_min``, ``steps``,
+``ppc_pvalue``, ``seconds``.  Columns carry astropy units.  A failed star
+has NaN in every numeric column (and ``converged`` false).
+
+:func:`build_summary_table` consumes its documents one at a time and keeps
+only the flat rows, so a large catalog's table does not hold every star's
+full summary in memory.
+"""
+
+from __future__ import annotations
+
+import math
+from collections.abc import Iterable
+
+import astropy.units as u
+import numpy as np
+from astropy.table import Column, Table
+from radwalk import __version__
+
+OBSERVED = (("radius", "R_sun"), ("luminosity", "L_sun"), ("teff", "K"))
+PERCENTILE_KEYS = ("p16", "p50", "p84")
+SAMPLER_COLUMNS = ("converged", "acceptance", "tau_max", "ess_min", "steps", "ppc_pvalue", "seconds")
+TEXT_COLUMNS = ("id", "folder", "status", "reason", "warnings", "opacity", "unconstrained")
+WARNING_SEPARATOR = " | "
+
+_NAN = float("nan")
+
+
+def _unit(text: str | None):
+    """An astropy unit from the summary's unit string; None for dimensionless or unparseable."""
+    if not text:
+        return None
+    try:
+        return u.Unit(text)
+    except ValueError:
+        return None
+
+
+def _num(v) -> float:
+    try:
+        f = float(v)
+    except (TypeError, ValueError):
+        return _NAN
+    return f
+
+
+def _flat_row(doc: dict) -> tuple[dict, dict, dict]:
+    """(text and scalar values, parameter name -> unit, derived name -> unit) of one document."""
+    row = {
+        "id": str(doc.get("id", "")),
+        "folder": str(doc.get("folder", "")),
+        "status": str(doc.get("status", "failed")),
+        "reason": " ".join(str(doc.get("reason") or "").split()),
+        "warnings": WARNING_SEPARATOR.join(" ".join(str(w).split()) for w in doc.get("warnings", []) or []),
+        "opacity": str(doc.get("opacity") or ""),
+        "unconstrained": ", ".join(doc.get("unconstrained", []) or []),
+    }
+    obs = doc.get("observed") or {}
+    for key, _ in OBSERVED:
+        o = obs.get(key) or {}
+        row[f"{key}_obs"] = _num(o.get("value"))
+        row[f"{key}_obs_err"] = _num(o.get("error"))
+    feh = doc.get("feh")
+    row["feh_obs"], row["feh_obs_err"] = (_num(feh[0]), _num(feh[1])) if feh else (_NAN, _NAN)
+    punits, dunits = {}, {}
+    for name, p in (doc.get("parameters") or {}).items():
+        punits[name] = p.get("unit", "")
+        for key in (*PERCENTILE_KEYS, "map"):
+            row[f"{name}_{key}"] = _num(p.get(key))
+    for name, d in (doc.get("derived") or {}).items():
+        dunits[name] = d.get("unit", "")
+        for key in PERCENTILE_KEYS:
+            row[f"{name}_{key}"] = _num(d.get(key))
+    sampler = doc.get("sampler") or {}
+    params = doc.get("parameters") or {}
+    ess = [e for e in (_num(p.get("ess")) for p in params.values()) if math.isfinite(e)]
+    row["converged"] = bool(sampler.get("converged", False))
+    row["acceptance"] = _num(sampler.get("acceptance"))
+    row["tau_max"] = _num(sampler.get("tau_max"))
+    row["ess_min"] = min(ess) if ess else _NAN
+    row["steps"] = _num(sampler.get("steps"))
+    row["ppc_pvalue"] = _num(doc.get("ppc_pvalue"))
+    row["seconds"] = _num(doc.get("seconds"))
+    return row, punits, dunits
+
+
+def _text_column(name: str, values: list[str]) -> Column:
+    width = max([1] + [len(v) for v in values])
+    return Column(np.array(values, dtype=f"U{width}"), name=name)
+
+
+def build_summary_table(docs: Iterable[dict]) -> Table:
+    """One row a star from summary documents (summary.json contents plus ``folder``).
+
+    Parameters
+    ----------
+    docs : iterable of dict
+        Summary documents in catalog order; consumed one at a time.
+
+    Returns
+    -------
+    astropy.table.Table
+        See the module docstring for the columns; units on every dimensional column.
+    """
+    rows: list[dict] = []
+    punits: dict[str, str] = {}
+    dunits: dict[str, str] = {}
+    for doc in docs:
+        row, pu, du = _flat_row(doc)
+        rows.append(row)
+        for n, un in pu.items():
+            punits.setdefault(n, un)
+        for n, un in du.items():
+            dunits.setdefault(n, un)
+    table = Table()
+    for name in TEXT_COLUMNS:
+        table.add_column(_text_column(name, [r[name] for r in rows]))
+
+    def add(name, unit=None, description=None):
+        values = np.array([r.get(name, _NAN) for r in rows], dtype=float)
+        table.add_column(Column(values, name=name, unit=_unit(unit), description=description))
+
+    for key, unit in OBSERVED:
+        add(f"{key}_obs", unit, f"observed {key}")
+        add(f"{key}_obs_err", unit, f"uncertainty of the observed {key}")
+    add("feh_obs", None, "observed [Fe/H] (dex)")
+    add("feh_obs_err", None, "uncertainty of the observed [Fe/H] (dex)")
+    for name, unit in punits.items():
+        for key in PERCENTILE_KEYS:
+            add(f"{name}_{key}", unit, f"{key[1:]}th percentile of the posterior of {name}")
+        add(f"{name}_map", unit, f"{name} at the posterior maximum")
+    for name, unit in dunits.items():
+        if f"{name}_p16" in table.colnames:
+            continue  # a parameter of the same name already has its columns
+        for key in PERCENTILE_KEYS:
+            add(f"{name}_{key}", unit, f"{key[1:]}th percentile of {name} over the posterior samples")
+    table.add_column(Column(np.array([r["converged"] for r in rows], dtype=bool), name="converged"))
+    add("acceptance", None, "mean acceptance fraction of the walkers")
+    add("tau_max", None, "largest integrated autocorrelation time (steps)")
+    add("ess_min", None, "smallest effective sample size over the parameters")
+    add("steps", None, "chain length (steps)")
+    add("ppc_pvalue", None, "posterior-predictive p-value of chi^2")
+    add("seconds", "s", "wall time of the star's fit")
+    table.meta["radwalk_version"] = __version__
+    table.meta["stars"] = len(rows)
+    return table
+
+
+def fits_safe(table: Table) -> Table:
+    """A copy FITS can hold: text is ASCII only (other characters written as escapes)."""
+    out = table.copy(copy_data=True)
+    for name in out.colnames:
+        col = out[name]
+        if col.dtype.kind == "U":
+            vals = [str(v).encode("ascii", "backslashreplace").decode("ascii") for v in col]
+            out.replace_column(name, _text_column(name, vals))
+    out.meta = {"RADWALK": str(table.meta.get("radwalk_version", __version__)), "NSTARS": len(out)}
+    return out
+
+
+def posterior_interval(chain_file, name: str, level: float = 0.95, burn: int = 0, thin: int = 1):
+    """Central credible interval of one sampled parameter from a star's chain.h5.
+
+    Parameters
+    ----------
+    chain_file : str or Path
+        The star's chain.h5.
+    name : str
+        Parameter name (one of the file's ``names`` attribute).
+    level : float
+        Probability inside the interval.
+    burn, thin : int
+        Steps dropped at the start, and thinning (the summary's sampler.burn / sampler.thin).
+
+    Returns
+    -------
+    tuple of float
+        (lower, upper) in the parameter's unit.
+    """
+    import h5py
+
+    with h5py.File(chain_file, "r") as f:
+        names = [n.decode() if isinstance(n, bytes) else str(n) for n in f.attrs["names"]]
+        j = names.index(name)
+        x = np.asarray(f["chain"][burn::thin, :, j]).ravel()
+    x = x[np.isfinite(x)]
+    if x.size == 0:
+        return (math.nan, math.nan)
+    lo, hi = np.percentile(x, [50 * (1 - level), 50 * (1 + level)])
+    return float(lo), float(hi)

@@ -1,0 +1,1 @@
+"""Catalog runs: catalog reader, run state and resume, executors (local, Dask), orchestration, demo."""
