@@ -1,4 +1,4 @@
-"""`radwalk fit` (one star from the command line) and `radwalk check-plugin`."""
+"""`radwalk fit`: one star's posterior from the command line."""
 
 from __future__ import annotations
 
@@ -6,8 +6,8 @@ import json
 import math
 from pathlib import Path
 
+from radwalk.cli.args import config_from_args
 from radwalk.errors import ConfigError
-from radwalk.host import config as config_mod
 
 
 def add_fit_parser(sub, common):
@@ -28,52 +28,6 @@ def add_fit_parser(sub, common):
     f.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
     f.add_argument("--json", action="store_true", help="print the summary as JSON")
     f.set_defaults(func=cmd_fit)
-
-
-def config_from_args(args, validate: bool = True) -> config_mod.RunConfig:
-    """The run config from --config, with the command-line choices laid over it.
-
-    ``validate`` builds the chosen stages once, so a misspelt component or
-    parameter fails here (catalog runs do that in the runner instead).
-    """
-    from radwalk.cli.main import _parse_set
-
-    cfg = config_mod.load(args.config) if args.config else config_mod.RunConfig()
-    stages = dict(cfg.stages)
-    for stage in ("profile", "relation", "likelihood"):
-        if getattr(args, stage, None):
-            stages[stage] = getattr(args, stage)
-    if getattr(args, "opacity", None):
-        names = tuple(n.strip() for n in args.opacity.split(",") if n.strip())
-        if not names:
-            raise ConfigError(f"--opacity needs one or more law names separated by commas, got {args.opacity!r}")
-        stages["opacity"] = names if len(names) > 1 else names[0]
-    settings = dict(cfg.settings)
-    for key, value in _parse_set(getattr(args, "set", None)).items():
-        try:
-            settings[key] = float(value)
-        except ValueError:
-            settings[key] = value
-    extra = (str(Path(p).expanduser().resolve()) for p in getattr(args, "plugin", None) or ())
-    plugins = tuple(dict.fromkeys((*cfg.plugins, *extra)))
-    seed = cfg.seed if getattr(args, "seed", None) is None else args.seed
-    if seed < 0:
-        raise ConfigError(f"--seed must be a non-negative integer, got {seed}")
-    new = cfg.with_changes(stages=stages, settings=settings, plugins=plugins, seed=seed)
-    if validate:
-        validate_choices(new)
-    return new
-
-
-def validate_choices(cfg: config_mod.RunConfig):
-    """Fails early (one line) on unknown components, options or parameter names."""
-    from radwalk.host.components import Observations
-    from radwalk.inference.fit import stages_for
-    from radwalk.inference.posterior import Posterior
-
-    for op in cfg.opacity_names():
-        stages = stages_for(cfg, op)
-        Posterior(stages, Observations({}, {}), cfg)
 
 
 def _fmt(d: dict) -> str:
@@ -161,42 +115,3 @@ def _check_writable(folder: Path):
         probe.unlink()
     except OSError as exc:
         raise ConfigError(f"output folder {folder} is not writable: {exc.strerror or exc}") from None
-
-
-def add_check_parser(sub, common):
-    c = sub.add_parser("check-plugin", parents=[common],
-                       help="check a plugin file, module or component against its stage contract")
-    c.add_argument("target", help="a plugin file, an importable module, or a component name")
-    c.add_argument("--set", action="append", metavar="NAME=VALUE", help="option for the component (e.g. table=FILE)")
-    c.add_argument("--map", metavar="PNG", help="write a log-kappa map of each opacity law (default: <name>-kappa.png)")
-    c.add_argument("--no-map", action="store_true", help="do not write the log-kappa map")
-    c.set_defaults(func=cmd_check)
-
-
-def cmd_check(args):
-    from radwalk.cli.main import _parse_set
-    from radwalk.host.contracts import check_target, plot_log_kappa_map, resolve_target
-
-    options = _parse_set(args.set) or None
-    reports = check_target(args.target, options=options)
-    ok = True
-    for rep in reports:
-        print(rep.format_table())
-        print()
-        ok &= rep.passed
-    if not args.no_map:
-        try:
-            _, entries = resolve_target(args.target)
-        except Exception:  # noqa: BLE001 - the load failure is already in the table
-            entries = []
-        for entry in entries:
-            if entry.stage != "opacity":
-                continue
-            path = Path(args.map) if args.map and len(entries) == 1 else Path(f"{entry.name}-kappa.png")
-            try:
-                plot_log_kappa_map(entry, path, options=options)
-                print(f"log-kappa map: {path}")
-            except Exception as exc:  # noqa: BLE001
-                print(f"log-kappa map not written: {exc}")
-    print("PASS" if ok else "FAIL")
-    return 0 if ok else 1

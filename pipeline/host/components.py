@@ -12,6 +12,7 @@ from dataclasses import dataclass
 from typing import Protocol, runtime_checkable
 
 import numpy as np
+
 from radwalk.host.params import Param, Validity
 
 STAGES = ("profile", "opacity", "relation", "likelihood")

@@ -53,6 +53,7 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 import numpy as np
+
 from radwalk import constants as k
 from radwalk.constants import X_SUN, Z_SUN
 from radwalk.errors import ConfigError, PluginError, RadwalkError
@@ -784,6 +785,7 @@ def plot_log_kappa_map(entry, path, *, X: float | None = None, Z: float | None =
     matplotlib.use("Agg")
     import matplotlib.pyplot as plt
     from matplotlib.patches import Rectangle
+
     from radwalk.results.files import atomic_path
 
     comp = getattr(entry, "component", entry)

@@ -12,6 +12,7 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
+
 from radwalk.errors import ConfigError
 
 

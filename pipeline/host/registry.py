@@ -17,6 +17,7 @@ from dataclasses import dataclass
 from pathlib import Path
 
 import pluggy
+
 from radwalk.errors import ConfigError, PluginError
 from radwalk.host import hookspecs
 from radwalk.host.components import STAGES

@@ -13,6 +13,7 @@ import warnings
 from dataclasses import dataclass
 
 import numpy as np
+
 from radwalk.errors import ModelError, ValidityWarning
 from radwalk.host.params import Validity
 

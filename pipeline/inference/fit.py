@@ -16,6 +16,7 @@ from functools import lru_cache
 from pathlib import Path
 
 import numpy as np
+
 from radwalk import __version__
 from radwalk import constants as k
 from radwalk.errors import CatalogError, ConfigError, ModelError, PluginError, RadwalkError, ValidityWarning

@@ -8,6 +8,7 @@ where the relation finds no star, and never NaN.
 from __future__ import annotations
 
 import numpy as np
+
 from radwalk.errors import ConfigError
 from radwalk.host.components import Observations
 from radwalk.host.config import RunConfig

@@ -19,9 +19,10 @@ from pathlib import Path
 
 import emcee
 import numpy as np
+from scipy.optimize import minimize
+
 from radwalk.host.config import SamplerConfig
 from radwalk.inference.posterior import Posterior
-from scipy.optimize import minimize
 
 _BIG = 1e300
 

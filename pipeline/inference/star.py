@@ -7,6 +7,7 @@ import re
 from dataclasses import dataclass
 
 import numpy as np
+
 from radwalk import constants as k
 from radwalk.errors import CatalogError
 from radwalk.host.components import OBSERVABLES, Observations

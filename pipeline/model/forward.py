@@ -7,6 +7,7 @@ from dataclasses import dataclass
 
 import numpy as np
 from astropy.table import Table
+
 from radwalk import constants as k
 from radwalk.errors import ConfigError, ModelError, ValidityWarning
 from radwalk.model.stages import StageSet

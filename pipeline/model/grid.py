@@ -24,6 +24,7 @@ import os
 from pathlib import Path
 
 import numpy as np
+
 from radwalk import constants as k
 from radwalk.physics import energy, lane_emden
 

@@ -12,6 +12,7 @@ from __future__ import annotations
 from dataclasses import dataclass, field
 
 import numpy as np
+
 from radwalk import constants as k
 from radwalk.constants import X_SUN, Z_SUN
 from radwalk.errors import ConfigError, ModelError

@@ -5,6 +5,7 @@
 """
 
 import numpy as np
+
 from radwalk.constants import X_SUN, Z_SUN  # noqa: F401  (the reference composition lives with the constants)
 from radwalk.errors import ConfigError
 

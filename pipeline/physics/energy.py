@@ -44,6 +44,7 @@ from __future__ import annotations
 from typing import NamedTuple
 
 import numpy as np
+
 from radwalk.host.params import Validity
 
 # Prefactors of the fits converted to cgs (see the module docstring).

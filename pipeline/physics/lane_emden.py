@@ -23,9 +23,10 @@ from dataclasses import dataclass
 from functools import lru_cache
 
 import numpy as np
-from radwalk.errors import ConfigError, ModelError
 from scipy.integrate import solve_ivp
 from scipy.interpolate import CubicSpline
+
+from radwalk.errors import ConfigError, ModelError
 
 __all__ = ["GRID", "LaneEmden", "solve", "tables", "TABLE_NODES", "TABLE_TOP"]
 

@@ -17,6 +17,7 @@ import math
 from functools import lru_cache
 
 import numpy as np
+
 from radwalk import constants as const
 from radwalk.errors import ModelError
 from radwalk.host.components import Profile

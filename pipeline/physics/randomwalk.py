@@ -15,6 +15,7 @@ the number of steps grows as tau^2.
 from __future__ import annotations
 
 import numpy as np
+
 from radwalk import constants as k
 
 

@@ -30,6 +30,7 @@ from __future__ import annotations
 from dataclasses import dataclass
 
 import numpy as np
+
 from radwalk import constants as k
 from radwalk.host.components import Profile
 from radwalk.physics.energy import eps_nuclear

@@ -35,6 +35,7 @@ from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch  # noqa: E402
 from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter  # noqa: E402
+
 from radwalk import constants as k  # noqa: E402
 from radwalk.inference.fit import BAND_PERCENTILES, TIMESCALES, FitProducts, derived_label, derived_unit  # noqa: E402
 from radwalk.physics.transport import QUANTITIES  # noqa: E402

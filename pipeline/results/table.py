@@ -24,6 +24,7 @@ from collections.abc import Iterable
 import astropy.units as u
 import numpy as np
 from astropy.table import Column, Table
+
 from radwalk import __version__
 
 OBSERVED = (("radius", "R_sun"), ("luminosity", "L_sun"), ("teff", "K"))

@@ -37,6 +37,7 @@ from typing import NamedTuple
 
 import astropy.units as u
 import numpy as np
+
 from radwalk import constants as k
 from radwalk.errors import CatalogError
 from radwalk.host.config import CATALOG_COLUMNS

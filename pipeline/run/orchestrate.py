@@ -42,7 +42,6 @@ shared folder only their summary.json (from the returned result) reaches DIR.
 
 from __future__ import annotations
 
-import argparse
 import concurrent.futures as cf
 import hashlib
 import json
@@ -507,6 +506,7 @@ def check_config(config: RunConfig):
         "<stage> <component>" -> where the component came from (built-in, entry point, file).
     """
     import numpy as np
+
     from radwalk.inference.fit import stages_for
     from radwalk.inference.posterior import Posterior
     from radwalk.inference.star import Star
@@ -696,8 +696,9 @@ def _count(outcome: RunOutcome, status: str):
 
 
 def _compute(ex, todo, out, config, hashes, plots, quiet, outcome):
-    from radwalk.inference.fit import result_document
     from tqdm import tqdm
+
+    from radwalk.inference.fit import result_document
 
     bar = tqdm(total=outcome.stars, initial=outcome.stars - len(todo), unit="star", desc="stars",
                file=sys.stderr, disable=quiet, dynamic_ncols=True, smoothing=0.1)
@@ -779,6 +780,7 @@ def demo_recovery(out_dir, truths_path, level: float = 0.95, names=("mass", "X",
         ``stars`` (id -> {name: (lower, upper, truth)}).
     """
     from astropy.table import Table
+
     from radwalk.results.table import posterior_interval
 
     out = Path(out_dir)
@@ -806,107 +808,8 @@ def demo_recovery(out_dir, truths_path, level: float = 0.95, names=("mass", "X",
     return res
 
 
-# -- command line -----------------------------------------------------------------
-def _int_at_least(minimum: int):
-    """An argparse type for whole numbers >= minimum."""
-    def parse(text: str) -> int:
-        try:
-            v = int(text)
-        except ValueError:
-            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
-        if v < minimum:
-            raise argparse.ArgumentTypeError(f"must be at least {minimum}, got {v}")
-        return v
-    return parse
-
-
-_positive_int = _int_at_least(1)
-_seed = _int_at_least(0)
-
-
 def load_run_config(path) -> RunConfig:
     """A run config from TOML (a run's own run.toml works too: its [provenance] is ignored)."""
     from radwalk.host.config import load
 
     return load(path)
-
-
-def config_from_args(args) -> RunConfig:
-    """The run config from --config with --plugin, --seed, --opacity (and --set) on top."""
-    from radwalk.cli.fit import config_from_args as from_args
-
-    return from_args(args, validate=False)  # run_catalog checks the stages itself
-
-
-def add_run_parser(sub, common):
-    """``radwalk run CATALOG --out DIR ...``"""
-    p = sub.add_parser("run", parents=[common], help="fit every star of a catalog into an output folder",
-                       description="Fits every star of CATALOG and writes summary tables, per-star folders and "
-                       "a report into DIR.  Running the same command again resumes an interrupted run.")
-    p.add_argument("catalog", metavar="CATALOG", help="ECSV, FITS, VOTable or CSV table of stars")
-    p.add_argument("--out", required=True, metavar="DIR", help="output folder (created if needed)")
-    p.add_argument("--config", metavar="FILE", help="run config (TOML)")
-    p.add_argument("--executor", choices=("local", "dask"), default=None,
-                   help="local process pool (default) or a Dask cluster")
-    p.add_argument("--workers", type=_positive_int, metavar="N", help="worker processes (default: all cores)")
-    p.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler address, e.g. tcp://host:8786")
-    p.add_argument("--seed", type=_seed, metavar="S", help="global seed (replaces the config's)")
-    p.add_argument("--opacity", metavar="LAW[,LAW...]", help="opacity law, or several to compare")
-    p.add_argument("--force", action="store_true", help="recompute every star; accept a changed catalog or config")
-    p.add_argument("--no-report", action="store_true", help="skip the HTML report")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
-    p.set_defaults(func=cmd_run)
-    return p
-
-
-def _print_outcome(outcome: RunOutcome):
-    print(f"radwalk: {outcome.line()}")
-    print(f"summary: {outcome.summary_ecsv} (and {outcome.summary_fits.name})")
-    if outcome.report:
-        print(f"report: {outcome.report}")
-    elif outcome.report_message:
-        print(f"radwalk: {outcome.report_message}", file=sys.stderr)
-
-
-def cmd_run(args) -> int:
-    config = config_from_args(args)
-    executor = args.executor or ("dask" if args.scheduler else "local")
-    outcome = run_catalog(args.catalog, args.out, config, executor=executor, workers=args.workers,
-                          scheduler=args.scheduler, force=args.force, report=not args.no_report, quiet=args.quiet)
-    for note in outcome.notices:
-        print(f"notice: {note}", file=sys.stderr)
-    _print_outcome(outcome)
-    return 0
-
-
-def add_demo_parser(sub, common):
-    """``radwalk demo [--out ./radwalk-demo] [--workers N]``"""
-    p = sub.add_parser("demo", parents=[common], help="run the invented demo catalog end to end",
-                       description="Fits the invented demo catalog (demo_catalog/) and writes its report.")
-    p.add_argument("--out", default="radwalk-demo", metavar="DIR", help="output folder (default ./radwalk-demo)")
-    p.add_argument("--workers", type=_positive_int, metavar="N", help="worker processes (default: all cores)")
-    p.add_argument("--force", action="store_true", help="recompute every star")
-    p.add_argument("--no-report", action="store_true", help="skip the HTML report")
-    p.add_argument("--quiet", action="store_true", help="no progress bar")
-    p.set_defaults(func=cmd_demo)
-    return p
-
-
-def cmd_demo(args) -> int:
-    paths = demo_paths()
-    config = load_run_config(paths["config"])
-    extra = [str(Path(p).expanduser().resolve()) for p in getattr(args, "plugin", None) or ()]
-    if extra:
-        config = config.with_changes(plugins=tuple(dict.fromkeys((*config.plugins, *extra))))
-    print(f"radwalk demo: {paths['catalog'].name} (an invented field, see {paths['catalog'].parent / 'README.md'})")
-    outcome = run_catalog(paths["catalog"], args.out, config, workers=args.workers, force=args.force,
-                          report=not args.no_report, quiet=args.quiet)
-    _print_outcome(outcome)
-    rec = demo_recovery(outcome.out_dir, paths["truths"])
-    if rec["converged"]:
-        shown = ", ".join(f"{n} {c}" for n, c in rec["inside"].items())
-        print(f"true values inside the 95 % intervals, of {rec['converged']} converged stars: {shown} "
-              f"({paths['truths'].name})")
-    if outcome.report:
-        print(f"open {outcome.report} in a browser")
-    return 0

@@ -4,6 +4,7 @@ import json
 
 import h5py
 import pytest
+
 from radwalk.cli.main import main
 
 

@@ -7,6 +7,7 @@ import textwrap
 
 import pytest
 from astropy.table import Table
+
 from radwalk.cli.main import main
 
 JSON_KEYS = (

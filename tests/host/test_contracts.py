@@ -7,6 +7,7 @@ finiteness, positivity, no warnings inside the declared validity range.
 
 import numpy as np
 import pytest
+
 from radwalk.host.components import STAGES
 from radwalk.host.contracts import check_component
 from radwalk.host.registry import Registry
@@ -23,6 +24,7 @@ def test_component_meets_its_stage_contract(entry):
 
 def test_tabulated_meets_the_contract_once_given_a_table(tmp_path):
     from astropy.table import Table
+
     from radwalk.plugins.opacity import ElectronScattering, Kramers
 
     lr, lt = np.meshgrid(np.arange(-8, 2.01, 0.25), np.arange(4, 8.01, 0.1), indexing="ij")

@@ -7,6 +7,7 @@ import textwrap
 
 import numpy as np
 import pytest
+
 from radwalk.errors import ConfigError, PluginError
 from radwalk.host.contracts import (
     JUMP_FACTOR,

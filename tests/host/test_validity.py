@@ -4,6 +4,7 @@ import warnings
 
 import numpy as np
 import pytest
+
 from radwalk.errors import ModelError, ValidityWarning
 from radwalk.host.params import Validity
 from radwalk.host.validity import fraction_outside, outside_validity, warn_outside

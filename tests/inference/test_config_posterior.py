@@ -2,6 +2,7 @@
 
 import numpy as np
 import pytest
+
 from radwalk.errors import ConfigError
 from radwalk.host import config as cfgmod
 from radwalk.host.components import Observations

@@ -4,6 +4,7 @@ from concurrent.futures import ProcessPoolExecutor
 
 import numpy as np
 import pytest
+
 from radwalk import constants as k
 from radwalk.host.config import RunConfig, SamplerConfig
 from radwalk.inference.fit import fit_one, stages_for

@@ -4,9 +4,10 @@ import warnings
 
 import numpy as np
 import pytest
+from scipy.optimize import brentq
+
 from radwalk.host.params import Validity
 from radwalk.physics import energy
-from scipy.optimize import brentq
 
 # Standard solar model BS05(OP) central zone: Bahcall, Serenelli & Basu 2005, ApJ 621, L85.
 BS05_TC = 1.567e7  # K

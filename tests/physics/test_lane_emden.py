@@ -4,6 +4,7 @@ import math
 
 import numpy as np
 import pytest
+
 from radwalk.errors import ConfigError
 from radwalk.physics import lane_emden as le
 

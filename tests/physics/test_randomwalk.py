@@ -1,6 +1,7 @@
 """The Monte Carlo photon walk against the diffusion integral (issue 2)."""
 
 import numpy as np
+
 from radwalk.physics import lane_emden
 from radwalk.physics.randomwalk import diffusion_estimate, escape_times
 

@@ -4,6 +4,7 @@ import math
 
 import numpy as np
 import pytest
+
 from radwalk import constants as k
 from radwalk.model.forward import model_star
 from radwalk.model.stages import StageSet

@@ -16,6 +16,7 @@ from pathlib import Path
 
 import numpy as np
 import pytest
+
 from radwalk.cli.main import main
 from radwalk.errors import ValidityWarning
 from radwalk.host.config import RunConfig, SamplerConfig

@@ -2,11 +2,11 @@
 
 import numpy as np
 import pytest
+
+from plugins import opacity as op
 from radwalk import constants
 from radwalk.host.components import BoundOpacity, OpacityLaw
 from radwalk.host.params import Param, Validity
-
-from plugins import opacity as op
 
 # Standard solar model BS05(OP) central zone: Bahcall, Serenelli & Basu 2005, ApJ 621, L85.
 BS05_TC = 1.567e7  # K

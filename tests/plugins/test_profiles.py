@@ -4,6 +4,10 @@ import math
 
 import numpy as np
 import pytest
+from scipy.integrate import cumulative_simpson
+from scipy.interpolate import CubicSpline
+
+from plugins import profiles
 from radwalk import constants as const
 from radwalk.errors import ConfigError, ModelError
 from radwalk.host.components import Profile, ProfileModel
@@ -17,10 +21,6 @@ from radwalk.physics.polytrope import (
     temperature_from_pressure,
 )
 from radwalk.plugins.profiles import EddingtonStandard, Polytrope
-from scipy.integrate import cumulative_simpson
-from scipy.interpolate import CubicSpline
-
-from plugins import profiles
 
 SUN = dict(M=np.array([const.M_SUN]), R=np.array([const.R_SUN]), X=np.array([0.7]), Z=np.array([0.02]))
 

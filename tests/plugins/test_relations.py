@@ -2,6 +2,7 @@
 
 import numpy as np
 import pytest
+
 from radwalk import constants as k
 from radwalk.host.components import BoundOpacity
 from radwalk.model.stages import StageSet

@@ -8,6 +8,7 @@ import astropy.units as u
 import numpy as np
 import pytest
 from astropy.table import Table
+
 from radwalk.errors import ConfigError, ModelError, ValidityWarning
 from radwalk.host.registry import Registry
 from radwalk.plugins.opacity import radwalk_opacities

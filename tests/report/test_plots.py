@@ -18,6 +18,7 @@ matplotlib.use("Agg")
 import matplotlib.image  # noqa: E402
 import numpy as np  # noqa: E402
 import pytest  # noqa: E402
+
 from radwalk.host.config import RunConfig, SamplerConfig  # noqa: E402
 from radwalk.inference.fit import StarResult, fit_one, result_document  # noqa: E402
 from radwalk.inference.star import Star, seed_for  # noqa: E402

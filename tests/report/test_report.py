@@ -21,14 +21,14 @@ from urllib.parse import unquote, urlsplit
 import numpy as np
 import pytest
 from astropy.table import Table
+
 from radwalk import __version__
+from radwalk.cli.report import add_report_parser, cmd_report
 from radwalk.errors import ConfigError
 from radwalk.host.config import RunConfig, SamplerConfig
 from radwalk.inference.fit import fit_star
 from radwalk.inference.star import Star, safe_folder_name
 from radwalk.report.pages import (
-    add_report_parser,
-    cmd_report,
     interval,
     star_page_name,
     unconstrained_sentence,

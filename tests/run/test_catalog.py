@@ -6,6 +6,7 @@ import astropy.units as u
 import numpy as np
 import pytest
 from astropy.table import MaskedColumn, Table
+
 from radwalk import constants as k
 from radwalk.errors import CatalogError
 from radwalk.inference.star import Star, safe_folder_name

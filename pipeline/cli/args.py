@@ -1,0 +1,96 @@
+"""Argument helpers shared by the subcommands: number types, NAME=VALUE settings, the run config from options."""
+
+from __future__ import annotations
+
+import argparse
+from pathlib import Path
+
+from radwalk.errors import ConfigError
+from radwalk.host import config as config_mod
+
+
+def common_parser() -> argparse.ArgumentParser:
+    """Options every subcommand takes (a parent parser)."""
+    common = argparse.ArgumentParser(add_help=False)
+    common.add_argument("--plugin", action="append", default=[], metavar="FILE",
+                        help="load components from a plugin file (repeatable)")
+    return common
+
+
+def finite_float(text):
+    try:
+        return float(text)
+    except ValueError:
+        raise argparse.ArgumentTypeError(f"{text!r} is not a number") from None
+
+
+def int_at_least(minimum: int):
+    """An argparse type for whole numbers >= minimum."""
+    def parse(text: str) -> int:
+        try:
+            v = int(text)
+        except ValueError:
+            raise argparse.ArgumentTypeError(f"{text!r} is not a whole number") from None
+        if v < minimum:
+            raise argparse.ArgumentTypeError(f"must be at least {minimum}, got {v}")
+        return v
+    return parse
+
+
+POSITIVE_INT = int_at_least(1)
+SEED = int_at_least(0)
+
+
+def parse_set(items) -> dict:
+    """``--set NAME=VALUE`` items as a dict of strings."""
+    out = {}
+    for item in items or ():
+        if "=" not in item:
+            raise ConfigError(f"--set needs NAME=VALUE, got {item!r}")
+        name, value = item.split("=", 1)
+        out[name.strip()] = value.strip()
+    return out
+
+
+def config_from_args(args, validate: bool = True) -> config_mod.RunConfig:
+    """The run config from --config, with the command-line choices laid over it.
+
+    ``validate`` builds the chosen stages once, so a misspelt component or
+    parameter fails here (catalog runs do that in the runner instead).
+    """
+    cfg = config_mod.load(args.config) if args.config else config_mod.RunConfig()
+    stages = dict(cfg.stages)
+    for stage in ("profile", "relation", "likelihood"):
+        if getattr(args, stage, None):
+            stages[stage] = getattr(args, stage)
+    if getattr(args, "opacity", None):
+        names = tuple(n.strip() for n in args.opacity.split(",") if n.strip())
+        if not names:
+            raise ConfigError(f"--opacity needs one or more law names separated by commas, got {args.opacity!r}")
+        stages["opacity"] = names if len(names) > 1 else names[0]
+    settings = dict(cfg.settings)
+    for key, value in parse_set(getattr(args, "set", None)).items():
+        try:
+            settings[key] = float(value)
+        except ValueError:
+            settings[key] = value
+    extra = (str(Path(p).expanduser().resolve()) for p in getattr(args, "plugin", None) or ())
+    plugins = tuple(dict.fromkeys((*cfg.plugins, *extra)))
+    seed = cfg.seed if getattr(args, "seed", None) is None else args.seed
+    if seed < 0:
+        raise ConfigError(f"--seed must be a non-negative integer, got {seed}")
+    new = cfg.with_changes(stages=stages, settings=settings, plugins=plugins, seed=seed)
+    if validate:
+        validate_choices(new)
+    return new
+
+
+def validate_choices(cfg: config_mod.RunConfig):
+    """Fails early (one line) on unknown components, options or parameter names."""
+    from radwalk.host.components import Observations
+    from radwalk.inference.fit import stages_for
+    from radwalk.inference.posterior import Posterior
+
+    for op in cfg.opacity_names():
+        stages = stages_for(cfg, op)
+        Posterior(stages, Observations({}, {}), cfg)

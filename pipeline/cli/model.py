@@ -1,0 +1,52 @@
+"""`radwalk model`: the forward model of one star of given mass and composition."""
+
+from __future__ import annotations
+
+import json
+
+from radwalk.cli.args import finite_float, parse_set
+
+
+def add_model_parser(sub, common):
+    m = sub.add_parser("model", parents=[common], help="interior and timescales of one star of given mass")
+    m.add_argument("--mass", type=finite_float, required=True, help="mass in M_sun")
+    m.add_argument("--X", type=finite_float, default=None, help="hydrogen mass fraction (default: solar)")
+    m.add_argument("--Z", type=finite_float, default=None, help="metal mass fraction (default: solar)")
+    m.add_argument("--radius", type=finite_float, help="radius in R_sun, replacing the relation's")
+    m.add_argument("--luminosity", type=finite_float, help="luminosity in L_sun, replacing the relation's")
+    m.add_argument("--profile", help="profile model (default polytrope)")
+    m.add_argument("--opacity", help="opacity law (default combined)")
+    m.add_argument("--relation", help="mass-radius-luminosity relation (default homology)")
+    m.add_argument("--set", action="append", metavar="NAME=VALUE", help="component parameter or option")
+    m.add_argument("--json", action="store_true", help="print one JSON object")
+    m.add_argument("--profile-out", metavar="FILE", help="write the radial profile (ECSV, with units)")
+    m.set_defaults(func=cmd_model)
+    return m
+
+
+def cmd_model(args):
+    from pathlib import Path
+
+    from radwalk.constants import X_SUN, Z_SUN
+    from radwalk.host.config import RunConfig
+    from radwalk.inference.fit import stages_for
+    from radwalk.model.forward import format_summary, model_star
+
+    args.X = X_SUN if args.X is None else args.X
+    args.Z = Z_SUN if args.Z is None else args.Z
+    stages_named = {k: v for k, v in (("profile", args.profile), ("opacity", args.opacity),
+                                      ("relation", args.relation)) if v}
+    settings = parse_set(args.set)
+    plugins = tuple(str(Path(p).expanduser().resolve()) for p in args.plugin)
+    stages = stages_for(RunConfig(stages=stages_named, settings=settings, plugins=plugins))
+    params = {k: v for k, v in settings.items() if k not in stages.option_names()}
+    interior = model_star(stages, args.mass, args.X, args.Z, params, radius=args.radius, luminosity=args.luminosity)
+    if args.profile_out:
+        from radwalk.results.files import write_table
+
+        write_table(interior.profile_table, args.profile_out)
+    if args.json:
+        print(json.dumps(interior.summary, indent=2))
+    else:
+        print(format_summary(interior.summary))
+    return 0
