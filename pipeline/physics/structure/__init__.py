@@ -1,0 +1,1 @@
+"""Stellar-structure solver: EOS, energy generation, convection, atmosphere, relaxation."""
