@@ -18,16 +18,15 @@ from pathlib import Path
 import numpy as np
 
 from radwalk import __version__
-from radwalk import constants as k
 from radwalk.errors import CatalogError, ConfigError, ModelError, PluginError, RadwalkError, ValidityWarning
 from radwalk.host.config import RunConfig
 from radwalk.host.registry import Registry
 from radwalk.inference.posterior import Posterior
 from radwalk.inference.sampler import Chain, run_chain
 from radwalk.inference.star import Star, seed_for
+from radwalk.model.quantities import CATALOGUE, output_unit, quantity, register_plugin_quantity
 from radwalk.model.stages import StageSet
 from radwalk.physics.composition import mu
-from radwalk.physics.transport import QUANTITIES
 from radwalk.results.files import write_json
 
 PERCENTILES = (16.0, 50.0, 84.0)
@@ -35,36 +34,6 @@ BAND_PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)
 BAND_FIELDS = ("rho", "T", "kappa", "mean_free_path", "diffusion_time_cumulative")
 PPC_POOR = 0.01  # posterior-predictive p-value below which the fit is flagged as poor
 NO_REACH_SIGMA = 5.0  # an observable this many sigma from the best model cannot be reached
-
-# derived quantity -> (output unit, factor from the transport module's unit)
-OUTPUT_UNITS = {
-    "radius": ("R_sun", 1.0 / k.R_SUN),
-    "luminosity": ("L_sun", 1.0 / k.L_SUN),
-    "teff": ("K", 1.0),
-    "mu": ("", 1.0),
-    "photosphere_radius": ("R_sun", 1.0 / k.R_SUN),
-    "eddington_luminosity": ("L_sun", 1.0 / k.L_SUN),
-}
-LABELS = {"radius": r"$R\,[R_\odot]$", "luminosity": r"$L\,[L_\odot]$", "teff": r"$T_\mathrm{eff}\,[\mathrm{K}]$",
-          "mu": r"$\mu$"}
-TIMESCALES = ("diffusion_time", "diffusion_time_radiative", "kelvin_helmholtz_time", "dynamical_time")
-
-
-def derived_unit(name: str) -> str:
-    if name in OUTPUT_UNITS:
-        return OUTPUT_UNITS[name][0]
-    if name in PLUGIN_UNITS:
-        return PLUGIN_UNITS[name]
-    return QUANTITIES[name][0]
-
-
-def derived_label(name: str) -> str:
-    if name in LABELS:
-        return LABELS[name]
-    unit = derived_unit(name)
-    base = QUANTITIES[name][2] if name in QUANTITIES else name.replace("_", " ")
-    return f"{base}$\\,[\\mathrm{{{unit.replace(' ', '')}}}]$" if unit else base
-
 
 @dataclass
 class FitProducts:
@@ -164,12 +133,10 @@ def check_reachable(post: Posterior, theta_map):
         p = float(pred[key][0])
         v, e = obs.values[key], obs.errors[key]
         if not np.isfinite(p) or abs(p - v) / e > NO_REACH_SIGMA and abs(p - v) / v > 0.1:
-            from radwalk.inference.star import USER_UNITS
-
-            f, unit, label = USER_UNITS[key]
-            best = "none" if not np.isfinite(p) else f"{p / f:.4g} {unit}"
+            q = quantity(key)
+            best = "none" if not np.isfinite(p) else f"{q.to_output(p):.4g} {q.output_unit}"
             raise ModelError(
-                f"no model within the priors reaches {label} = {v / f:.4g} {unit} "
+                f"no model within the priors reaches {q.plain} = {q.to_output(v):.4g} {q.output_unit} "
                 f"(closest: {best}, with relation {post.stages.relation.name!r})"
             )
 
@@ -187,18 +154,14 @@ def derive(post: Posterior, samples: np.ndarray):
     notes += post.stages.validity_messages(vals_ok, prof)
     derived = {}
     for key in ("radius", "luminosity", "teff"):
-        derived[key] = pred[key][ok] * OUTPUT_UNITS[key][1]
+        derived[key] = pred[key][ok] * quantity(key).factor
     derived["mu"] = np.broadcast_to(mu(vals_ok["X"], vals_ok["Z"]), (int(ok.sum()),)).copy()
     for key, v in tr.scalars.items():
-        derived[key] = v * OUTPUT_UNITS.get(key, (None, 1.0))[1]
+        derived[key] = v * (CATALOGUE[key].factor if key in CATALOGUE else 1.0)
     derived.update(plugin_quantities(post.stages, prof, vals_ok, tr, set(derived)))
     fields = {"rho": prof.rho, "T": prof.T, **tr.fields}
     bands = {f: np.percentile(fields[f], BAND_PERCENTILES, axis=0) for f in BAND_FIELDS}
     return derived, bands, prof.r[0] / prof.R[0], notes, ok
-
-
-# units of quantities that plugins add through the radwalk_derived_quantities hook
-PLUGIN_UNITS: dict = {}
 
 
 def plugin_quantities(stages, profile, values, tr, taken: set) -> dict:
@@ -216,7 +179,7 @@ def plugin_quantities(stages, profile, values, tr, taken: set) -> dict:
             if name in taken or name in out:
                 raise PluginError(f"derived quantity {name!r} is already defined; choose another name")
             arr = np.broadcast_to(np.asarray(arr, dtype=float), (profile.n,)).copy()
-            PLUGIN_UNITS[name] = str(unit)
+            register_plugin_quantity(name, unit)
             out[name] = arr
     return out
 
@@ -291,7 +254,7 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     dq = {}
     for key, v in derived.items():
         p16, p50, p84 = _percentiles(v)
-        dq[key] = {"unit": derived_unit(key), "p16": p16, "p50": p50, "p84": p84,
+        dq[key] = {"unit": output_unit(key), "p16": p16, "p50": p50, "p84": p84,
                    "map": map_derived.get(key, float("nan"))}
     unconstrained = [n for n, d in params.items() if not d["constrained"]]
     summary = {

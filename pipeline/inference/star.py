@@ -8,17 +8,17 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from radwalk import constants as k
 from radwalk.errors import CatalogError
 from radwalk.host.components import OBSERVABLES, Observations
-
-# observable -> (cgs factor from the user unit, user unit, label)
-USER_UNITS = {"radius": (k.R_SUN, "R_sun", "R"), "luminosity": (k.L_SUN, "L_sun", "L"), "teff": (1.0, "K", "T_eff")}
+from radwalk.model.quantities import quantity
 
 
 @dataclass(frozen=True)
 class Star:
-    """One star: id, observables in cgs (NaN: not measured) and an optional [Fe/H]."""
+    """One star: id, observables in cgs (NaN: not measured) and an optional [Fe/H].
+
+    User units are the quantity catalogue's output units (R_sun, L_sun, K).
+    """
 
     id: str
     values: tuple  # (radius cm, luminosity erg/s, teff K)
@@ -35,7 +35,8 @@ class Star:
             v, e = given[key]
             v = np.nan if v is None else float(v)
             e = np.nan if e is None else float(e)
-            factor, unit, label = USER_UNITS[key]
+            q = quantity(key)
+            factor, unit, label = q.scale, q.output_unit, q.plain
             if np.isnan(v) and np.isnan(e):
                 vals.append(np.nan)
                 errs.append(np.nan)
@@ -64,7 +65,7 @@ class Star:
 
     def user_values(self) -> dict:
         """Observables in R_sun, L_sun, K as name -> (value, error)."""
-        return {key: (v / USER_UNITS[key][0], e / USER_UNITS[key][0])
+        return {key: (quantity(key).to_output(v), quantity(key).to_output(e))
                 for key, v, e in zip(OBSERVABLES, self.values, self.errors)}
 
 

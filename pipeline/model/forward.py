@@ -10,29 +10,23 @@ from astropy.table import Table
 
 from radwalk import constants as k
 from radwalk.errors import ConfigError, ModelError, ValidityWarning
+from radwalk.model.quantities import plain_unit, quantity
 from radwalk.model.stages import StageSet
 from radwalk.physics.composition import check_composition, mu
 
-# JSON key -> (scalar quantity or callable, unit for the human table, label)
+# The quantities of the summary, in order; units and words from the quantity catalogue.
 SUMMARY_ROWS = (
-    ("mass_msun", "M_sun", "mass"),
-    ("radius_rsun", "R_sun", "radius"),
-    ("luminosity_lsun", "L_sun", "luminosity"),
-    ("teff_k", "K", "effective temperature"),
-    ("mu", "", "mean molecular weight"),
-    ("central_density_g_cm3", "g/cm^3", "central density"),
-    ("central_temperature_k", "K", "central temperature"),
-    ("central_pressure_dyn_cm2", "dyn/cm^2", "central pressure"),
-    ("mean_free_path_center_cm", "cm", "photon mean free path at centre"),
-    ("photosphere_radius_rsun", "R_sun", "photosphere (tau = 2/3)"),
-    ("diffusion_time_yr", "yr", "photon diffusion time"),
-    ("diffusion_time_radiative_yr", "yr", "  through radiative layers only"),
-    ("diffusion_time_uniform_yr", "yr", "  uniform-density estimate"),
-    ("kelvin_helmholtz_time_yr", "yr", "Kelvin-Helmholtz time"),
-    ("dynamical_time_s", "s", "dynamical time"),
-    ("eddington_luminosity_lsun", "L_sun", "Eddington luminosity"),
-    ("eddington_ratio", "", "L / L_Edd"),
+    "mass", "radius", "luminosity", "teff", "mu", "central_density", "central_temperature", "central_pressure",
+    "mean_free_path_center", "photosphere_radius", "diffusion_time", "diffusion_time_radiative",
+    "diffusion_time_uniform", "kelvin_helmholtz_time", "dynamical_time", "eddington_luminosity", "eddington_ratio",
 )
+SUB_ROWS = ("diffusion_time_radiative", "diffusion_time_uniform")  # shown indented under the one before
+
+
+def summary_key(name: str) -> str:
+    """The JSON key of a quantity: its name and output unit (``radius_rsun``, ``central_density_g_cm3``)."""
+    unit = quantity(name).output_unit
+    return f"{name}_{unit.lower().replace(' / ', '_').replace('_sun', 'sun')}" if unit else name
 
 
 @dataclass
@@ -79,29 +73,16 @@ def model_star(stages: StageSet, mass: float, X: float, Z: float, settings: dict
             )
         prof, tr = stages.structure(values, R, L)
     notes = list(dict.fromkeys([str(w.message) for w in caught] + stages.validity_messages(values, prof)))
-    s = tr.scalars
     r_rel = prof.r[0] / prof.R[0]
     teff = (L[0] / (4 * np.pi * R[0] ** 2 * k.SIGMA_SB)) ** 0.25
+    computed = {"mass": mass, "radius": R[0], "luminosity": L[0], "teff": teff, "mu": mu(X, Z),
+                **{name: v[0] for name, v in tr.scalars.items()}}
+    rows = [(summary_key(n), float(quantity(n).to_output(computed[n]))) for n in SUMMARY_ROWS]
     summary = {
-        "mass_msun": float(mass),
-        "radius_rsun": float(R[0] / k.R_SUN),
-        "luminosity_lsun": float(L[0] / k.L_SUN),
-        "teff_k": float(teff),
+        **dict(rows[:4]),  # mass, radius, luminosity, teff; then the composition
         "X": float(X),
         "Z": float(Z),
-        "mu": float(mu(X, Z)),
-        "central_density_g_cm3": float(s["central_density"][0]),
-        "central_temperature_k": float(s["central_temperature"][0]),
-        "central_pressure_dyn_cm2": float(s["central_pressure"][0]),
-        "mean_free_path_center_cm": float(s["mean_free_path_center"][0]),
-        "photosphere_radius_rsun": float(s["photosphere_radius"][0] / k.R_SUN),
-        "diffusion_time_yr": float(s["diffusion_time"][0]),
-        "diffusion_time_radiative_yr": float(s["diffusion_time_radiative"][0]),
-        "diffusion_time_uniform_yr": float(s["diffusion_time_uniform"][0]),
-        "kelvin_helmholtz_time_yr": float(s["kelvin_helmholtz_time"][0]),
-        "dynamical_time_s": float(s["dynamical_time"][0]),
-        "eddington_luminosity_lsun": float(s["eddington_luminosity"][0] / k.L_SUN),
-        "eddington_ratio": float(s["eddington_ratio"][0]),
+        **dict(rows[4:]),
         "convective_zones": tr.zones(0, r_rel),
         "radius_source": "given" if radius is not None else stages.relation.name,
         "luminosity_source": "given" if luminosity is not None else stages.relation.name,
@@ -147,8 +128,10 @@ def format_summary(summary: dict) -> str:
         lines.append("parameters: " + "  ".join(f"{k_}={v:g}" for k_, v in summary["parameters"].items()))
     lines.append(f"composition: X={summary['X']:g}  Z={summary['Z']:g}  Y={1 - summary['X'] - summary['Z']:g}")
     lines.append("")
-    width = max(len(label) for _, _, label in SUMMARY_ROWS)
-    for key, unit, label in SUMMARY_ROWS:
+    labels = {n: ("  " if n in SUB_ROWS else "") + quantity(n).short for n in SUMMARY_ROWS}
+    width = max(len(label) for label in labels.values())
+    for name in SUMMARY_ROWS:
+        key, unit, label = summary_key(name), plain_unit(quantity(name).output_unit), labels[name]
         v = summary[key]
         txt = f"{v:.4g}" if abs(v) < 1e5 or v == 0 else f"{v:.4e}"
         note = ""

@@ -37,31 +37,13 @@ from radwalk.physics.energy import eps_nuclear
 
 PHOTOSPHERE_TAU = 2.0 / 3.0
 
-# name -> (unit, description, LaTeX label)
-QUANTITIES = {
-    "central_density": ("g / cm3", "central density", r"$\rho_c$"),
-    "central_temperature": ("K", "central temperature", r"$T_c$"),
-    "central_pressure": ("dyn / cm2", "central pressure", r"$P_c$"),
-    "mean_free_path_center": ("cm", "photon mean free path at the centre", r"$\lambda_c$"),
-    "photosphere_radius": ("cm", "radius where tau = 2/3", r"$r_{\tau=2/3}$"),
-    "diffusion_time": ("yr", "photon diffusion time, centre to surface", r"$t_\mathrm{diff}$"),
-    "diffusion_time_radiative": ("yr", "photon diffusion time through radiative layers only",
-                                 r"$t_\mathrm{diff,rad}$"),
-    "diffusion_time_uniform": ("yr", "uniform-density estimate R^2 kappa rho / c", r"$t_\mathrm{diff,uni}$"),
-    "kelvin_helmholtz_time": ("yr", "Kelvin-Helmholtz time |Omega|/(2L)", r"$t_\mathrm{KH}$"),
-    "dynamical_time": ("s", "dynamical time sqrt(R^3/GM)", r"$t_\mathrm{dyn}$"),
-    "eddington_luminosity": ("erg / s", "Eddington luminosity (Thomson opacity)", r"$L_\mathrm{Edd}$"),
-    "eddington_ratio": ("", "L / L_Edd", r"$L/L_\mathrm{Edd}$"),
-    "core_convective_radius": ("", "outer edge of a convective core in r/R (0: none)", r"$r_\mathrm{cc}/R$"),
-    "envelope_convective_radius": ("", "inner edge of a convective envelope in r/R (1: none)",
-                                   r"$r_\mathrm{ce}/R$"),
-    "convective_mass_fraction": ("", "fraction of the mass in convective layers", r"$M_\mathrm{conv}/M$"),
-}
-
 
 @dataclass
 class Transport:
-    """Transport quantities of n samples: scalars ``[n]`` and fields ``[n, ngrid]``."""
+    """Transport quantities of n samples: scalars ``[n]`` and fields ``[n, ngrid]``.
+
+    The scalars' names, units and words are in :data:`radwalk.model.quantities.CATALOGUE`.
+    """
 
     scalars: dict
     fields: dict

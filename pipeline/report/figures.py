@@ -37,8 +37,8 @@ from matplotlib.patches import Patch  # noqa: E402
 from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter  # noqa: E402
 
 from radwalk import constants as k  # noqa: E402
-from radwalk.inference.fit import BAND_PERCENTILES, TIMESCALES, FitProducts, derived_label, derived_unit  # noqa: E402
-from radwalk.physics.transport import QUANTITIES  # noqa: E402
+from radwalk.inference.fit import BAND_PERCENTILES, FitProducts  # noqa: E402
+from radwalk.model.quantities import TIMESCALES, latex_label, latex_symbol, output_unit  # noqa: E402
 from radwalk.results.files import atomic_path  # noqa: E402
 
 DPI = 110
@@ -253,7 +253,7 @@ def timescale_columns(products: FitProducts):
     Returns
     -------
     names : list of str
-        Kept timescales (from ``radwalk.inference.fit.TIMESCALES``).
+        Kept timescales (from ``radwalk.model.quantities.TIMESCALES``).
     data : ndarray, shape [N, len(names)]
         log10 of the timescales in their output units (yr, or s for the dynamical time).
     notes : list of str
@@ -261,7 +261,7 @@ def timescale_columns(products: FitProducts):
     """
     notes, cols, names = [], [], []
     for name in TIMESCALES:
-        sym = QUANTITIES[name][2]
+        sym = latex_symbol(name)
         if name not in products.derived:
             notes.append(f"{sym}: not computed")
             continue
@@ -286,16 +286,16 @@ def timescale_columns(products: FitProducts):
         logs = np.log10(data[ok])
     keep = []
     for j, name in enumerate(names):
-        sym = QUANTITIES[name][2]
+        sym = latex_symbol(name)
         x = logs[:, j]
         if x.size < 2 or np.ptp(x) <= 1e-10 * max(1.0, float(np.max(np.abs(x)))):
-            value = f"{10 ** x[0]:.3g} {derived_unit(name)}" if x.size else "n/a"
+            value = f"{10 ** x[0]:.3g} {output_unit(name)}" if x.size else "n/a"
             notes.append(f"{sym} left out: constant ({value})")
             continue
         if name == "diffusion_time_radiative" and "diffusion_time" in names:
             i = names.index("diffusion_time")
             if np.allclose(x, logs[:, i], rtol=0, atol=1e-9):
-                notes.append(f"{sym} left out: equal to " + QUANTITIES["diffusion_time"][2]
+                notes.append(f"{sym} left out: equal to " + latex_symbol("diffusion_time")
                              + " (no convective layers)")
                 continue
         keep.append(j)
@@ -315,12 +315,12 @@ def corner_timescales_figure(products: FitProducts) -> Figure:
             ax.set_title(title)
             _note(fig, notes)
             return fig
-        labels = [r"$\log_{10}$ " + derived_label(nm) for nm in names]
+        labels = [r"$\log_{10}$ " + latex_label(nm) for nm in names]
         fig, axes, _ = _corner_figure(data, labels, _ranges(data))
         for j, nm in enumerate(names):
             q = np.percentile(10 ** data[:, j], [16, 50, 84])
-            unit = unit_tex(derived_unit(nm))
-            axes[j, j].set_title(f"{QUANTITIES[nm][2]} = {estimate_tex(*q)} ${unit}$", fontsize=10.5)
+            unit = unit_tex(output_unit(nm))
+            axes[j, j].set_title(f"{latex_symbol(nm)} = {estimate_tex(*q)} ${unit}$", fontsize=10.5)
         handles = [Line2D([], [], color=POSTERIOR, label="posterior; dashed: 16, 50, 84 %")]
         lines = [f"{data.shape[0]} samples; contours: 1 and 2 sigma (39 % and 86 % of the 2-D mass)"] + notes
         _corner_header(fig, title, handles, lines)
@@ -454,14 +454,14 @@ def predictive_figure(products: FitProducts) -> Figure:
             pred = pred[np.isfinite(pred)]
             value, err = (float(x) for x in products.observed.get(key, (np.nan, np.nan)))
             measured = np.isfinite(value) and np.isfinite(err)
-            ax.set_xlabel(derived_label(key))
+            ax.set_xlabel(latex_label(key))
             ax.set_ylabel("samples")
             if pred.size:
                 ax.hist(pred, bins=int(np.clip(np.sqrt(pred.size), 10, 40)), color=POSTERIOR, alpha=0.55,
                         label="posterior predictive")
             else:
                 ax.text(0.5, 0.5, "no finite prediction", transform=ax.transAxes, ha="center")
-            unit = unit_tex(derived_unit(key))
+            unit = unit_tex(output_unit(key))
             if measured:
                 ax.axvspan(value - err, value + err, color="0.5", alpha=0.22, lw=0, label=r"observed $\pm1\sigma$")
                 ax.axvline(value, color=OBSERVED, lw=1.6, label="observed")
@@ -544,7 +544,7 @@ def opacity_comparison_figure(comparison: dict) -> Figure:
             ax_t.legend(title="opacity law (median, 16-84 %)", frameon=False)
         else:
             ax_t.text(0.5, 0.5, "no finite diffusion time", transform=ax_t.transAxes, ha="center")
-        ax_t.set_xlabel(derived_label("diffusion_time"))
+        ax_t.set_xlabel(latex_label("diffusion_time"))
         ax_t.set_ylabel(r"probability per dex")
         ax_t.set_title("photon diffusion time, centre to surface")
         fig.suptitle(f"{plain(some.star.id)}: the same star under {len(comparison)} opacity laws", fontsize=12)

@@ -34,6 +34,7 @@ from radwalk import __version__
 from radwalk.errors import ConfigError
 from radwalk.inference.fit import PPC_POOR
 from radwalk.inference.star import safe_folder_name
+from radwalk.model.quantities import DERIVED_GROUPS, OBS_SHORT, PARAM_SYMBOL, PARAM_WORDS, UNIT_HTML, description
 from radwalk.results.files import write_text
 
 if sys.version_info >= (3, 11):
@@ -69,26 +70,6 @@ CATALOG_PLOTS = {
 
 OBSERVABLE_ROWS = (("radius", "Radius R", "R_sun"), ("luminosity", "Luminosity L", "L_sun"),
                    ("teff", "Effective temperature T<sub>eff</sub>", "K"))
-OBS_SHORT = {"radius": "R", "luminosity": "L", "teff": "T_eff"}
-
-PARAM_WORDS = {"mass": "mass", "X": "hydrogen mass fraction", "Z": "metal mass fraction", "n": "polytropic index"}
-PARAM_SYMBOL = {"mass": "M", "X": "X", "Z": "Z", "n": "n"}
-
-DERIVED_GROUPS = (
-    ("Timescales", ("diffusion_time", "diffusion_time_radiative", "diffusion_time_uniform",
-                    "kelvin_helmholtz_time", "dynamical_time")),
-    ("Centre", ("central_density", "central_temperature", "central_pressure", "mean_free_path_center")),
-    ("Surface and global", ("radius", "luminosity", "teff", "photosphere_radius", "mu",
-                            "eddington_luminosity", "eddington_ratio")),
-    ("Convection", ("core_convective_radius", "envelope_convective_radius", "convective_mass_fraction")),
-)
-DERIVED_WORDS = {"radius": "radius (model)", "luminosity": "luminosity (model)",
-                 "teff": "effective temperature (model)", "mu": "mean molecular weight"}
-
-UNIT_HTML = {
-    "R_sun": "R<sub>☉</sub>", "L_sun": "L<sub>☉</sub>", "M_sun": "M<sub>☉</sub>",
-    "g / cm3": "g cm<sup>−3</sup>", "dyn / cm2": "dyn cm<sup>−2</sup>", "erg / s": "erg s<sup>−1</sup>",
-}
 
 # Catalog table columns: (header html, unit, where, name, sort key)
 CATALOG_COLUMNS = (
@@ -735,14 +716,7 @@ def _parameters_table(s: dict) -> str:
 
 
 def _derived_description(name: str) -> str:
-    if name in DERIVED_WORDS:
-        return DERIVED_WORDS[name]
-    try:
-        from radwalk.physics.transport import QUANTITIES
-
-        return QUANTITIES[name][1]
-    except (ImportError, KeyError):
-        return name.replace("_", " ")
+    return description(name)
 
 
 def _derived_table(s: dict) -> str:
