@@ -7,6 +7,7 @@ from pathlib import Path
 
 from radwalk.errors import ConfigError
 from radwalk.host import config as config_mod
+from radwalk.host.stages import STAGES
 
 
 def common_parser() -> argparse.ArgumentParser:
@@ -60,8 +61,8 @@ def config_from_args(args, validate: bool = True) -> config_mod.RunConfig:
     """
     cfg = config_mod.load(args.config) if args.config else config_mod.RunConfig()
     stages = dict(cfg.stages)
-    for stage in ("profile", "relation", "likelihood"):
-        if getattr(args, stage, None):
+    for stage in STAGES:
+        if stage != "opacity" and getattr(args, stage, None):  # opacity may name several laws: below
             stages[stage] = getattr(args, stage)
     if getattr(args, "opacity", None):
         names = tuple(n.strip() for n in args.opacity.split(",") if n.strip())

@@ -18,7 +18,8 @@ def add_check_parser(sub, common):
 
 
 def cmd_check(args):
-    from radwalk.host.contracts import check_target, plot_log_kappa_map, resolve_target
+    from radwalk.host.contracts import check_target, resolve_target
+    from radwalk.report.opacity_map import plot_log_kappa_map
 
     options = parse_set(args.set) or None
     reports = check_target(args.target, options=options)

@@ -8,6 +8,7 @@ from pathlib import Path
 
 from radwalk.cli.args import config_from_args
 from radwalk.errors import ConfigError
+from radwalk.host.stages import STAGE_TABLE, STAGES
 
 
 def add_fit_parser(sub, common):
@@ -20,10 +21,9 @@ def add_fit_parser(sub, common):
     f.add_argument("--config", help="run configuration (TOML)")
     f.add_argument("--out", help="output folder (default: radwalk-fit/<id>)")
     f.add_argument("--seed", type=int, help="random seed (default: the config's, else 1)")
-    f.add_argument("--profile", help="profile model")
-    f.add_argument("--opacity", help="opacity law, or several separated by commas to compare them")
-    f.add_argument("--relation", help="mass-radius-luminosity relation")
-    f.add_argument("--likelihood", help="likelihood")
+    for stage in STAGE_TABLE:
+        more = ", or several separated by commas to compare them" if stage.name == "opacity" else ""
+        f.add_argument(f"--{stage.name}", help=f"{stage.noun}{more}")
     f.add_argument("--set", action="append", metavar="NAME=VALUE", help="hold a parameter fixed or set an option")
     f.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
     f.add_argument("--json", action="store_true", help="print the summary as JSON")
@@ -44,8 +44,7 @@ def format_fit(doc: dict) -> str:
     if doc["status"] == "failed":
         return "\n".join(lines)
     st = doc["stages"]
-    lines.append(f"stages: profile={st['profile']}  opacity={st['opacity']}  relation={st['relation']}  "
-                 f"likelihood={st['likelihood']}")
+    lines.append("stages: " + "  ".join(f"{name}={st[name]}" for name in STAGES))
     s = doc["sampler"]
     lines.append(f"sampler: {s['walkers']} walkers x {s['steps']} steps, burn {s['burn']}, thin {s['thin']}, "
                  f"acceptance {s['acceptance']:.2f}, tau_max {s['tau_max']:.1f}, "

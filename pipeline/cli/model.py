@@ -5,6 +5,7 @@ from __future__ import annotations
 import json
 
 from radwalk.cli.args import finite_float, parse_set
+from radwalk.host.stages import STAGE_TABLE
 
 
 def add_model_parser(sub, common):
@@ -14,9 +15,9 @@ def add_model_parser(sub, common):
     m.add_argument("--Z", type=finite_float, default=None, help="metal mass fraction (default: solar)")
     m.add_argument("--radius", type=finite_float, help="radius in R_sun, replacing the relation's")
     m.add_argument("--luminosity", type=finite_float, help="luminosity in L_sun, replacing the relation's")
-    m.add_argument("--profile", help="profile model (default polytrope)")
-    m.add_argument("--opacity", help="opacity law (default combined)")
-    m.add_argument("--relation", help="mass-radius-luminosity relation (default homology)")
+    for stage in STAGE_TABLE:
+        if stage.forward:
+            m.add_argument(f"--{stage.name}", help=f"{stage.noun} (default {stage.default})")
     m.add_argument("--set", action="append", metavar="NAME=VALUE", help="component parameter or option")
     m.add_argument("--json", action="store_true", help="print one JSON object")
     m.add_argument("--profile-out", metavar="FILE", help="write the radial profile (ECSV, with units)")
@@ -34,8 +35,7 @@ def cmd_model(args):
 
     args.X = X_SUN if args.X is None else args.X
     args.Z = Z_SUN if args.Z is None else args.Z
-    stages_named = {k: v for k, v in (("profile", args.profile), ("opacity", args.opacity),
-                                      ("relation", args.relation)) if v}
+    stages_named = {s.name: getattr(args, s.name) for s in STAGE_TABLE if s.forward and getattr(args, s.name)}
     settings = parse_set(args.set)
     plugins = tuple(str(Path(p).expanduser().resolve()) for p in args.plugin)
     stages = stages_for(RunConfig(stages=stages_named, settings=settings, plugins=plugins))

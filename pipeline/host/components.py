@@ -1,5 +1,8 @@
 """Component protocols for the four stages and the arrays they exchange.
 
+The stages themselves (names, hooks, which protocol each uses) are listed in
+:mod:`radwalk.host.stages`.
+
 Arrays are plain numpy floats in cgs units with a leading sample (walker) axis
 of length ``n``.  Per-sample inputs (X, Z, component parameters) arrive with
 shape ``[n]`` or already shaped to broadcast against the field arrays; use
@@ -14,8 +17,6 @@ from typing import Protocol, runtime_checkable
 import numpy as np
 
 from radwalk.host.params import Param, Validity
-
-STAGES = ("profile", "opacity", "relation", "likelihood")
 
 # Observables a likelihood compares, in cgs: radius (cm), luminosity (erg/s), teff (K).
 OBSERVABLES = ("radius", "luminosity", "teff")

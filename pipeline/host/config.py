@@ -50,6 +50,7 @@ from radwalk.constants import X_SUN, Z_SUN
 from radwalk.errors import ConfigError
 from radwalk.host.params import Prior
 from radwalk.host.registry import suggest
+from radwalk.host.stages import DEFAULTS, STAGES
 
 if sys.version_info >= (3, 11):
     import tomllib
@@ -96,7 +97,7 @@ class RunConfig:
     plugins: tuple = ()
 
     def opacity_names(self) -> tuple:
-        op = self.stages.get("opacity", "combined")
+        op = self.stages.get("opacity", DEFAULTS["opacity"])
         return tuple(op) if isinstance(op, (list, tuple)) else (op,)
 
     def stage_names(self, opacity: str | None = None) -> dict:
@@ -121,7 +122,7 @@ class RunConfig:
 
 
 _SECTIONS = {
-    "stages": ("profile", "opacity", "relation", "likelihood"),
+    "stages": STAGES,
     "settings": None,
     "priors": None,
     "sampler": tuple(f.name for f in fields(SamplerConfig)),

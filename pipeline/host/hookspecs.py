@@ -1,10 +1,13 @@
 """Every hook radwalk calls, in one place.
 
 A plugin is a module (or object) with functions marked ``@hookimpl`` and
-named after the specs below.  Provider hooks are *collected*: each plugin
-returns a list of components and the host gathers all of them; a component
-name that appears twice within a stage is an error.  A hook name that matches
-no spec (a misspelling) is rejected when the plugin is registered.
+named after the specs below.  There is one provider hook per stage; which
+hook feeds which stage, and the method its components must have, is in the
+stage table :data:`radwalk.host.stages.STAGE_TABLE`.  Provider hooks are
+*collected*: each plugin returns a list of components and the host gathers
+all of them; a component name that appears twice within a stage is an error.
+A hook name that matches no spec (a misspelling) is rejected when the plugin
+is registered.
 
 Components are objects following the protocols in :mod:`radwalk.host.components`:
 they carry ``name``, ``description``, ``params`` (tuple of

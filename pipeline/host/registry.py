@@ -20,7 +20,7 @@ import pluggy
 
 from radwalk.errors import ConfigError, PluginError
 from radwalk.host import hookspecs
-from radwalk.host.components import STAGES
+from radwalk.host.stages import BY_NAME, HOOKS, STAGES
 
 ENTRY_POINT_GROUP = "radwalk.plugins"
 BUILTIN_MODULES = (
@@ -30,15 +30,6 @@ BUILTIN_MODULES = (
     "radwalk.plugins.relations",
     "radwalk.plugins.likelihoods",
 )
-
-_STAGE_HOOKS = {
-    "profile": "radwalk_profiles",
-    "opacity": "radwalk_opacities",
-    "relation": "radwalk_relations",
-    "likelihood": "radwalk_likelihoods",
-}
-_REQUIRED_METHOD = {"profile": "profile", "opacity": "kappa", "relation": "predict", "likelihood": "loglike"}
-
 
 @dataclass(frozen=True)
 class Entry:
@@ -146,7 +137,7 @@ class Registry:
             self._register(module, label)
 
     def _collect(self):
-        for stage, hook in _STAGE_HOOKS.items():
+        for stage, hook in HOOKS.items():
             caller = getattr(self.pm.hook, hook)
             for impl in caller.get_hookimpls():
                 source = self._sources.get(impl.plugin, "unknown")
@@ -161,7 +152,7 @@ class Registry:
 
     def _add(self, stage: str, comp, source: str):
         missing = [a for a in ("name", "description", "params", "validity") if not hasattr(comp, a)]
-        method = _REQUIRED_METHOD[stage]
+        method = BY_NAME[stage].method
         if not callable(getattr(comp, method, None)):
             missing.append(f"method {method}()")
         if missing:

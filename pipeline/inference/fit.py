@@ -93,17 +93,19 @@ PROBE_POINTS = 24
 def check_opacity_contract(plugins: tuple, name: str, options: tuple = ()) -> None:
     """Raises PluginError naming the law and its first bad point if it breaks its contract.
 
-    A coarse run of the plugin checker (pipeline/plugin_check.py) over the
-    law's own validity range, once per process and law (~0.2 s): a law that
-    returns NaN, zero, negative or wrongly shaped values is named at once,
-    instead of surfacing as a sampler that finds no finite posterior.
+    The contract checks of :data:`PROBE_CHECKS` (those of ``radwalk
+    check-plugin``, :mod:`radwalk.host.contracts`) on a coarse grid over the
+    law's own validity range, once per process and law: a law that returns
+    NaN, zero, negative or wrongly shaped values is named at once, instead of
+    surfacing as a sampler that finds no finite posterior.
     """
     from radwalk.host.contracts import check_component
 
     reg = registry_for(plugins)
     entry = reg.entries["opacity"][name]
-    report = check_component(entry, grid_points=PROBE_POINTS, options=dict(options) or None, registry=reg)
-    bad = [r for r in report.rows if not r.passed and r.check in PROBE_CHECKS]
+    report = check_component(entry, grid_points=PROBE_POINTS, options=dict(options) or None, registry=reg,
+                             checks=PROBE_CHECKS)
+    bad = report.failed()
     if bad:
         raise PluginError(
             f"opacity {name!r} ({entry.source}) fails the {bad[0].check!r} check inside its own validity "

@@ -16,12 +16,11 @@ import numpy as np
 from radwalk import constants as k
 from radwalk.constants import X_SUN, Z_SUN
 from radwalk.errors import ConfigError, ModelError
-from radwalk.host.components import STAGES, BoundOpacity, Profile
+from radwalk.host.components import BoundOpacity, Profile
 from radwalk.host.params import Param, Prior
 from radwalk.host.registry import Registry, suggest
+from radwalk.host.stages import DEFAULTS, STAGES
 from radwalk.physics import transport
-
-DEFAULTS = {"profile": "polytrope", "opacity": "combined", "relation": "homology", "likelihood": "gaussian"}
 
 BASE_PARAMS = (
     Param("mass", "M_sun", 0.05, 150.0, 1.0, "stellar mass",

@@ -1,6 +1,6 @@
 """Contract tests over every registered component of every stage (issue 2).
 
-The built-in checker (pipeline/plugin_check.py) runs each component's stage
+The built-in checker (radwalk.host.contracts) runs each component's stage
 contract: declarations, shapes, broadcasting with a leading sample axis,
 finiteness, positivity, no warnings inside the declared validity range.
 """
@@ -8,9 +8,9 @@ finiteness, positivity, no warnings inside the declared validity range.
 import numpy as np
 import pytest
 
-from radwalk.host.components import STAGES
 from radwalk.host.contracts import check_component
 from radwalk.host.registry import Registry
+from radwalk.host.stages import STAGES
 
 _REG = Registry()
 ENTRIES = [e for s in STAGES for e in _REG.entries[s].values() if e.name != "tabulated"]

@@ -1,4 +1,4 @@
-"""The plugin checker: targets, the checks of each contract, the report table and the map."""
+"""The plugin checker: targets, the checks of each contract and the report table (the map: tests/report)."""
 
 from __future__ import annotations
 
@@ -14,7 +14,6 @@ from radwalk.host.contracts import (
     CheckReport,
     check_component,
     check_target,
-    plot_log_kappa_map,
     resolve_target,
 )
 from radwalk.host.registry import Registry
@@ -63,11 +62,6 @@ def only_report(path):
     reports = check_target(path, entry_points=False)
     assert len(reports) == 1
     return reports[0]
-
-
-@pytest.fixture(autouse=True)
-def _mpl_config(tmp_path, monkeypatch):
-    monkeypatch.setenv("MPLCONFIGDIR", str(tmp_path / "mpl"))
 
 
 @pytest.fixture(scope="module")
@@ -244,7 +238,7 @@ def test_bad_param_declaration(tmp_path):
     assert not row.passed and "scale: default 3 is outside [0.5, 2]" in row.detail
 
 
-# -- the report and the map --------------------------------------------------------------
+# -- the report --------------------------------------------------------------------------
 def test_format_table_is_aligned(tmp_path):
     report = only_report(plugin(tmp_path, body="return np.where(T > 1e6, np.nan, 0.34 + 0 * rho * X)"))
     lines = report.format_table().splitlines()
@@ -259,14 +253,3 @@ def test_format_table_is_aligned(tmp_path):
     empty = CheckReport("x", "opacity", "nowhere")
     assert not empty.passed
 
-
-def test_log_kappa_map_png(tmp_path, registry, table):
-    out = plot_log_kappa_map(registry.entries["opacity"]["combined"], tmp_path / "maps" / "combined.png")
-    data = out.read_bytes()
-    assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 10_000
-    # a law that refuses points outside its grid is drawn inside it only
-    strict = plot_log_kappa_map(registry.entries["opacity"]["tabulated"], tmp_path / "tab.png",
-                                options={"table": table, "outside": "error"})
-    assert strict.stat().st_size > 10_000
-    with pytest.raises(ConfigError, match="draws opacity laws"):
-        plot_log_kappa_map(registry.entries["relation"]["homology"], tmp_path / "no.png")

@@ -1,4 +1,4 @@
-"""Tests of the bent-power example law: shapes, positivity, and the formula at a few points.
+"""Tests of the bent-power example law: radwalk's opacity contract, the formula at a few points, shapes.
 
 Run from examples/opacity_plugin with ``python -m pytest`` (radwalk must be
 installed in the same environment).
@@ -8,9 +8,18 @@ import warnings
 
 import numpy as np
 import pytest
+import radwalk_bent_power
 from radwalk_bent_power import BentPower, radwalk_opacities
 
+from radwalk.host.contracts import contract_cases
+
 LAW = BentPower()
+
+
+# radwalk's whole contract for an opacity law, one test per check: test_contract[opacity:bent-power:finite], ...
+@pytest.mark.parametrize("case", contract_cases(radwalk_bent_power), ids=str)
+def test_contract(case):
+    case.run()
 DEFAULTS = {p.name: p.default for p in LAW.params}
 
 
