@@ -20,6 +20,7 @@ import time
 
 import emcee
 import numpy as np
+
 from radwalk.host.config import RunConfig
 from radwalk.inference.fit import fit_one, stages_for
 from radwalk.inference.posterior import Posterior

@@ -14,10 +14,11 @@ from __future__ import annotations
 import math
 
 import numpy as np
+from scipy.special import gammaln
+
 from radwalk.host.components import OBSERVABLES, Observations
 from radwalk.host.hookspecs import hookimpl
 from radwalk.host.params import Param, Validity
-from scipy.special import gammaln
 
 _FLOOR_DEFAULTS = {"radius": 0.03, "luminosity": 0.05, "teff": 0.01}
 

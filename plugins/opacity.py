@@ -21,6 +21,7 @@ here is used below 3000 K).
 from __future__ import annotations
 
 import numpy as np
+
 from radwalk.constants import M_U, SIGMA_T
 from radwalk.host.hookspecs import hookimpl
 from radwalk.host.params import Param, Validity

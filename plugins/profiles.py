@@ -7,6 +7,7 @@ the physics lives in :mod:`radwalk.physics.lane_emden` and :mod:`radwalk.physics
 from __future__ import annotations
 
 import numpy as np
+
 from radwalk.errors import ConfigError
 from radwalk.host.components import Profile
 from radwalk.host.hookspecs import hookimpl

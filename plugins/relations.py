@@ -23,6 +23,7 @@ from __future__ import annotations
 from functools import lru_cache
 
 import numpy as np
+
 from radwalk import constants as k
 from radwalk.host.hookspecs import hookimpl
 from radwalk.host.params import Validity

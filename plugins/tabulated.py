@@ -75,10 +75,11 @@ from pathlib import Path
 
 import astropy.units as u
 import numpy as np
+from scipy.interpolate import RectBivariateSpline
+
 from radwalk.errors import ConfigError, ModelError, ValidityWarning
 from radwalk.host.hookspecs import hookimpl
 from radwalk.host.params import Option, Validity
-from scipy.interpolate import RectBivariateSpline
 
 # The three quantities a table holds, with the unit of the quantity whose log10 is stored.
 AXIS_UNITS = {"log_rho": u.g / u.cm**3, "log_T": u.K, "log_kappa": u.cm**2 / u.g}

@@ -21,6 +21,7 @@ or give this file directly: ``radwalk fit --plugin radwalk_bent_power.py``.
 from __future__ import annotations
 
 import numpy as np
+
 from radwalk.host.hookspecs import hookimpl
 from radwalk.host.params import Param, Prior, Validity
 

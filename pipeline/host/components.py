@@ -11,7 +11,7 @@ shape ``[n]`` or already shaped to broadcast against the field arrays; use
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 from typing import Protocol, runtime_checkable
 
 import numpy as np
@@ -54,6 +54,23 @@ class Profile:
     M, R : ndarray [n], g and cm
     X, Z : ndarray [n]
         Hydrogen and metal mass fractions.
+    L : ndarray [n, ngrid], erg/s, optional
+        Luminosity through the sphere of radius r.  Models that solve the
+        energy equation give it; when it is None the transport stage spreads
+        the star's luminosity over the profile by pp + CNO energy generation.
+    nabla : ndarray [n, ngrid], optional
+        Actual temperature gradient dlnT/dlnP.
+    convective : ndarray [n, ngrid] of bool, optional
+        Convective layers as the model found them (Schwarzschild criterion);
+        None lets the transport stage apply the criterion itself.
+    v_conv : ndarray [n, ngrid], cm/s, optional
+        Convective velocity (mixing-length theory), 0 in radiative layers.
+    u : ndarray [n, ngrid], erg/g, optional
+        Specific internal energy from the model's equation of state; None
+        means an ideal monatomic gas plus radiation.
+    scalars : dict, optional
+        Model-specific per-sample quantities, name -> [n] (e.g. convective
+        turnover times); names and units are listed in the quantity catalogue.
     """
 
     r: np.ndarray
@@ -66,6 +83,12 @@ class Profile:
     R: np.ndarray
     X: np.ndarray
     Z: np.ndarray
+    L: np.ndarray | None = None
+    nabla: np.ndarray | None = None
+    convective: np.ndarray | None = None
+    v_conv: np.ndarray | None = None
+    u: np.ndarray | None = None
+    scalars: dict = field(default_factory=dict)
 
     @property
     def n(self) -> int:

@@ -29,6 +29,7 @@ BUILTIN_MODULES = (
     "radwalk.plugins.tabulated",
     "radwalk.plugins.relations",
     "radwalk.plugins.likelihoods",
+    "radwalk.plugins.structure",
 )
 
 @dataclass(frozen=True)

@@ -74,7 +74,14 @@ class StageSet:
         return {s: getattr(self, s) for s in STAGES}
 
     def component_params(self) -> list[Param]:
-        return [p for s in STAGES for p in getattr(self, s).params]
+        # A parameter declared identically by two stages (the solved profile and the solved relation share
+        # the mixing length and the age) is one parameter, passed to both; differing declarations clash.
+        out: list[Param] = []
+        for s in STAGES:
+            for p in getattr(self, s).params:
+                if not any(q == p for q in out):
+                    out.append(p)
+        return out
 
     def all_params(self) -> list[Param]:
         return list(BASE_PARAMS) + self.component_params()
@@ -106,6 +113,13 @@ class StageSet:
 
     def stage_kwargs(self, stage: str, values: dict) -> dict:
         return {p.name: values[p.name] for p in getattr(self, stage).params}
+
+    @property
+    def profile_takes_opacity(self) -> bool:
+        """Whether the profile model asks for the opacity stage (solved models do; polytropes do not)."""
+        import inspect
+
+        return "opacity" in inspect.signature(self.profile.profile).parameters
 
     def bound_opacity(self, values: dict) -> BoundOpacity:
         return BoundOpacity(self.opacity, self.stage_kwargs("opacity", values))
@@ -165,8 +179,11 @@ class StageSet:
         Z = np.broadcast_to(np.asarray(values["Z"], dtype=float), (n,)).copy()
         R = np.broadcast_to(np.asarray(R, dtype=float), (n,)).copy()
         L = np.broadcast_to(np.asarray(L, dtype=float), (n,)).copy()
-        prof = self.profile.profile(M, R, X, Z, **self.stage_kwargs("profile", values))
         opacity = self.bound_opacity(values)
+        kwargs = self.stage_kwargs("profile", values)
+        if self.profile_takes_opacity:
+            kwargs["opacity"] = opacity
+        prof = self.profile.profile(M, R, X, Z, **kwargs)
         tr = transport.compute(prof, opacity, L)
         _check_kappa(self.opacity.name, tr.fields["kappa"])
         return prof, tr

@@ -136,7 +136,11 @@ def check_profile_physical(subject) -> CheckRow | None:
         if np.any(np.diff(fields[f], axis=1) < 0):
             i = int(np.argwhere(np.diff(fields[f], axis=1) < 0)[0][0])
             problems.append(f"{f} decreases outwards for {st.label(i)}")
-    for f, whole, name in (("r", st.R, "R"), ("m", st.M, "M")):
+    # A model that solves for its own radius (``sets_radius = True``) must end at the R it reports, not at the
+    # R it was given.
+    own_R = getattr(s.original, "sets_radius", False)
+    R_ref = np.asarray(_call(s)[1].R, dtype=float) if own_R else st.R
+    for f, whole, name in (("r", R_ref, "R"), ("m", st.M, "M")):
         err = np.abs(fields[f][:, -1] / whole - 1.0)
         if np.any(err > SURFACE_RTOL):
             i = int(np.argmax(err))
