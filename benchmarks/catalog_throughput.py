@@ -22,7 +22,8 @@ from pathlib import Path
 
 from astropy.table import Table
 from radwalk.host.config import SamplerConfig
-from radwalk.run.orchestrate import demo_paths, load_run_config, run_catalog
+from radwalk.run.demo import demo_paths
+from radwalk.run.orchestrate import load_run_config, run_catalog
 
 
 def make_catalog(n: int, path: Path):

@@ -22,7 +22,8 @@ def add_demo_parser(sub, common):
 
 
 def cmd_demo(args) -> int:
-    from radwalk.run.orchestrate import demo_paths, demo_recovery, load_run_config, run_catalog
+    from radwalk.run.demo import demo_paths, demo_recovery
+    from radwalk.run.orchestrate import load_run_config, run_catalog
 
     paths = demo_paths()
     config = load_run_config(paths["config"])

@@ -72,8 +72,10 @@ def format_fit(doc: dict) -> str:
 
 
 def cmd_fit(args):
-    from radwalk.inference.fit import fit_star, result_document
-    from radwalk.inference.star import Star, safe_folder_name
+    from radwalk.inference.fit import fit_star
+    from radwalk.inference.star import Star
+    from radwalk.results.document import result_document
+    from radwalk.results.layout import safe_folder_name
 
     cfg = config_from_args(args)
     obs = {}

@@ -1,9 +1,10 @@
 """The per-star task: (star, config, seed) -> StarResult, a pure function.
 
-Samples the posterior, computes the transport quantities on every thinned
-sample (up to ``sampler.derived_samples`` of them, evenly spaced), writes the
-star's folder (chain.h5, plots, summary.json last, which marks it done) and
-returns a small picklable summary.
+Samples the posterior, computes the derived quantities
+(:mod:`radwalk.inference.derived`) on every thinned sample (up to
+``sampler.derived_samples`` of them, evenly spaced), writes the star's folder
+(:mod:`radwalk.results.layout`: chain.h5, plots, summary.json last, which
+marks it done) and returns a small picklable summary.
 """
 
 from __future__ import annotations
@@ -17,40 +18,19 @@ from pathlib import Path
 
 import numpy as np
 
-from radwalk import __version__
 from radwalk.errors import CatalogError, ConfigError, ModelError, PluginError, RadwalkError, ValidityWarning
 from radwalk.host.config import RunConfig
 from radwalk.host.registry import Registry
+from radwalk.inference.derived import check_reachable, derive, ppc_pvalue
 from radwalk.inference.posterior import Posterior
-from radwalk.inference.sampler import Chain, run_chain
+from radwalk.inference.sampler import run_chain
 from radwalk.inference.star import Star, seed_for
-from radwalk.model.quantities import CATALOGUE, output_unit, quantity, register_plugin_quantity
+from radwalk.model.quantities import output_unit
 from radwalk.model.stages import StageSet
-from radwalk.physics.composition import mu
+from radwalk.results.document import PERCENTILES, PPC_POOR, result_document
 from radwalk.results.files import write_json
-
-PERCENTILES = (16.0, 50.0, 84.0)
-BAND_PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)
-BAND_FIELDS = ("rho", "T", "kappa", "mean_free_path", "diffusion_time_cumulative")
-PPC_POOR = 0.01  # posterior-predictive p-value below which the fit is flagged as poor
-NO_REACH_SIGMA = 5.0  # an observable this many sigma from the best model cannot be reached
-
-@dataclass
-class FitProducts:
-    """Everything the plots and the report need about one fitted star (in memory)."""
-
-    star: Star
-    opacity: str
-    chain: Chain
-    param_names: list  # sampled parameters first (as in chain), then those drawn from their priors
-    param_labels: list
-    param_units: list
-    priors: list
-    samples: np.ndarray  # [N, ndim] thinned
-    derived: dict  # name -> [N] in output units
-    r_rel: np.ndarray  # [g]
-    bands: dict  # field -> [5, g]
-    observed: dict  # name -> (value, err) in R_sun, L_sun, K
+from radwalk.results.layout import STAR_SUMMARY, chain_file_name
+from radwalk.results.products import FitProducts
 
 
 @dataclass
@@ -125,84 +105,6 @@ def _evenly(n_total: int, n_keep: int):
     if n_total <= n_keep:
         return np.arange(n_total)
     return np.linspace(0, n_total - 1, n_keep).round().astype(int)
-
-
-def check_reachable(post: Posterior, theta_map):
-    """Raises ModelError when the best model is still far from a measured observable."""
-    pred = post.predict(theta_map[None, :])
-    obs = post.observed
-    for key in obs.present():
-        p = float(pred[key][0])
-        v, e = obs.values[key], obs.errors[key]
-        if not np.isfinite(p) or abs(p - v) / e > NO_REACH_SIGMA and abs(p - v) / v > 0.1:
-            q = quantity(key)
-            best = "none" if not np.isfinite(p) else f"{q.to_output(p):.4g} {q.output_unit}"
-            raise ModelError(
-                f"no model within the priors reaches {q.plain} = {q.to_output(v):.4g} {q.output_unit} "
-                f"(closest: {best}, with relation {post.stages.relation.name!r})"
-            )
-
-
-def derive(post: Posterior, samples: np.ndarray):
-    """Transport quantities and predictions on the given samples; also profile bands."""
-    vals = post.values(samples)
-    with warnings.catch_warnings(record=True) as caught:
-        warnings.simplefilter("always", ValidityWarning)
-        pred = post.stages.predict(vals)
-        ok = np.isfinite(pred["radius"]) & np.isfinite(pred["luminosity"])
-        vals_ok = {kk: (v[ok] if np.ndim(v) else v) for kk, v in vals.items()}
-        prof, tr = post.stages.structure(vals_ok, pred["radius"][ok], pred["luminosity"][ok])
-    notes = [str(w.message) for w in caught]
-    notes += post.stages.validity_messages(vals_ok, prof)
-    derived = {}
-    for key in ("radius", "luminosity", "teff"):
-        derived[key] = pred[key][ok] * quantity(key).factor
-    derived["mu"] = np.broadcast_to(mu(vals_ok["X"], vals_ok["Z"]), (int(ok.sum()),)).copy()
-    for key, v in tr.scalars.items():
-        derived[key] = v * (CATALOGUE[key].factor if key in CATALOGUE else 1.0)
-    derived.update(plugin_quantities(post.stages, prof, vals_ok, tr, set(derived)))
-    fields = {"rho": prof.rho, "T": prof.T, **tr.fields}
-    bands = {f: np.percentile(fields[f], BAND_PERCENTILES, axis=0) for f in BAND_FIELDS}
-    return derived, bands, prof.r[0] / prof.R[0], notes, ok
-
-
-def plugin_quantities(stages, profile, values, tr, taken: set) -> dict:
-    """Quantities added by plugins' ``radwalk_derived_quantities`` hooks, name -> [n]."""
-    hook = stages.registry.derived_hooks()
-    if not hook.get_hookimpls():
-        return {}
-    out = {}
-    for extra in hook(profile=profile, opacity=stages.bound_opacity(values), quantities=dict(tr.scalars)):
-        for name, item in (extra or {}).items():
-            try:
-                arr, unit, _desc = item
-            except (TypeError, ValueError):
-                raise PluginError(f"derived quantity {name!r} must be (values, unit, description)") from None
-            if name in taken or name in out:
-                raise PluginError(f"derived quantity {name!r} is already defined; choose another name")
-            arr = np.broadcast_to(np.asarray(arr, dtype=float), (profile.n,)).copy()
-            register_plugin_quantity(name, unit)
-            out[name] = arr
-    return out
-
-
-def ppc_pvalue(post: Posterior, samples, rng: np.random.Generator):
-    """Posterior-predictive p-value of chi^2: replicated data as extreme as the observed."""
-    pred = post.predict(samples)
-    obs = post.observed
-    lik = post.stages.likelihood
-    floors = {p.name: p.default for p in lik.params}
-    floors.update({kk: v for kk, v in post.fixed.items() if kk.startswith("floor_")})
-    chi_obs = np.zeros(samples.shape[0])
-    chi_rep = np.zeros(samples.shape[0])
-    for key in obs.present():
-        v, e = obs.values[key], obs.errors[key]
-        sigma = np.sqrt(e**2 + (floors.get(f"floor_{key}", 0.0) * v) ** 2)
-        rep = pred[key] + sigma * rng.standard_normal(samples.shape[0])
-        chi_obs += ((v - pred[key]) / sigma) ** 2
-        chi_rep += ((rep - pred[key]) / sigma) ** 2
-    good = np.isfinite(chi_obs)
-    return float(np.mean(chi_rep[good] >= chi_obs[good])) if good.any() else float("nan")
 
 
 def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity: str | None = None,
@@ -295,7 +197,7 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> 
             for j, op in enumerate(config.opacity_names()):
                 chain_path = None
                 if folder is not None:
-                    chain_path = folder / ("chain.partial.h5" if j == 0 else f"chain-{op}.partial.h5")
+                    chain_path = folder / chain_file_name(op, primary=j == 0, partial=True)
                 # every law gets the same fresh seed, so a comparison is paired and order-free
                 fits[op], products[op] = fit_one(star, config, seed_for(config.seed, star.id), op, chain_path)
         primary = config.opacity_names()[0]
@@ -307,8 +209,8 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> 
         reason = "" if status == "ok" else summary["sampler"]["reason"]
         if folder is not None:
             for j, op in enumerate(config.opacity_names()):
-                part = folder / ("chain.partial.h5" if j == 0 else f"chain-{op}.partial.h5")
-                part.replace(folder / part.name.replace(".partial", ""))
+                part = folder / chain_file_name(op, primary=j == 0, partial=True)
+                part.replace(folder / chain_file_name(op, primary=j == 0))
             if plots:
                 from radwalk.report.figures import write_star_plots
 
@@ -323,15 +225,5 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> 
         status, reason, summary = "failed", f"internal error: {tb}", {}
     result = StarResult(star.id, status, reason, summary, time.perf_counter() - t0)
     if folder is not None:
-        write_json(folder / "summary.json", result_document(star, config, result))
+        write_json(folder / STAR_SUMMARY, result_document(star, config, result))
     return result
-
-
-def result_document(star: Star, config: RunConfig, result: StarResult) -> dict:
-    obs = {kk: {"value": v, "error": e} for kk, (v, e) in star.user_values().items()}
-    return {
-        "id": star.id, "status": result.status, "reason": result.reason,
-        "observed": obs, "feh": list(star.feh) if star.feh else None,
-        "seed": config.seed, "radwalk_version": __version__, "seconds": result.seconds,
-        **result.summary,
-    }

@@ -6,16 +6,14 @@ integrated autocorrelation time tau is re-estimated; the run stops when the
 chain is longer than ``tau_multiple`` times the largest tau and every tau
 changed by less than ``tau_change`` since the previous chunk, or at
 ``max_steps`` (flagged not converged, with the reason).  Chains stay in
-memory and are appended to an HDF5 file once per chunk (emcee's own HDF
-backend reopens its file several times a step, measured about 17x slower per
-step), so a running fit can be inspected.
+memory and are appended to an HDF5 file once per chunk
+(:class:`radwalk.results.chain.ChainFile`), so a running fit can be inspected.
 """
 
 from __future__ import annotations
 
 import math
 from dataclasses import dataclass
-from pathlib import Path
 
 import emcee
 import numpy as np
@@ -23,6 +21,7 @@ from scipy.optimize import minimize
 
 from radwalk.host.config import SamplerConfig
 from radwalk.inference.posterior import Posterior
+from radwalk.results.chain import ChainFile
 
 _BIG = 1e300
 
@@ -106,35 +105,6 @@ def initial_ball(post: Posterior, centre, rng: np.random.Generator, walkers: int
         if filled == walkers:
             return pts
     raise RuntimeError("could not place walkers with a finite posterior around the maximum")
-
-
-class ChainFile:
-    """Appends chunks of a chain to an HDF5 file (gzip) so a running fit can be inspected."""
-
-    def __init__(self, path: Path, names, walkers: int):
-        import h5py
-
-        self.path = Path(path)
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        self._h5py = h5py
-        with h5py.File(self.path, "w") as f:
-            nd = len(names)
-            f.create_dataset("chain", shape=(0, walkers, nd), maxshape=(None, walkers, nd), dtype="f8",
-                             chunks=(64, walkers, nd), compression="gzip", compression_opts=4)
-            f.create_dataset("log_prob", shape=(0, walkers), maxshape=(None, walkers), dtype="f8",
-                             chunks=(64, walkers), compression="gzip", compression_opts=4)
-            f.attrs["names"] = [str(n) for n in names]
-
-    def append(self, chain, log_prob, **attrs):
-        with self._h5py.File(self.path, "a") as f:
-            c, lp = f["chain"], f["log_prob"]
-            start = c.shape[0]
-            c.resize(start + chain.shape[0], axis=0)
-            lp.resize(start + chain.shape[0], axis=0)
-            c[start:] = chain
-            lp[start:] = log_prob
-            for k, v in attrs.items():
-                f.attrs[k] = v
 
 
 def run_chain(post: Posterior, cfg: SamplerConfig, seed: np.random.SeedSequence, chain_path=None,

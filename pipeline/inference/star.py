@@ -3,7 +3,6 @@
 from __future__ import annotations
 
 import hashlib
-import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -74,11 +73,3 @@ def seed_for(global_seed: int, star_id: str) -> np.random.SeedSequence:
     digest = hashlib.sha256(star_id.encode("utf-8")).digest()
     key = tuple(int.from_bytes(digest[i : i + 4], "little") for i in range(0, 16, 4))
     return np.random.SeedSequence(global_seed, spawn_key=key)
-
-
-def safe_folder_name(star_id: str) -> str:
-    """A file-system-safe, unique folder name for a star id (never a path outside its parent)."""
-    base = re.sub(r"[^A-Za-z0-9._-]+", "_", star_id).strip("._-")[:60] or "star"
-    if base == star_id:
-        return base
-    return f"{base}-{hashlib.sha256(star_id.encode()).hexdigest()[:8]}"

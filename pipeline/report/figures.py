@@ -1,6 +1,6 @@
 """Figures of one fitted star and of a whole catalog, written as PNG files.
 
-Per star (from :class:`radwalk.inference.fit.FitProducts`): a corner plot of the fitted
+Per star (from :class:`radwalk.results.products.FitProducts`): a corner plot of the fitted
 parameters, a corner plot of the transport timescales, the walkers' traces, the
 radial profile with credible bands, a posterior-predictive check of R, L and
 T_eff and, when several opacity laws were fitted, their comparison.  Per
@@ -37,9 +37,9 @@ from matplotlib.patches import Patch  # noqa: E402
 from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter  # noqa: E402
 
 from radwalk import constants as k  # noqa: E402
-from radwalk.inference.fit import BAND_PERCENTILES, FitProducts  # noqa: E402
 from radwalk.model.quantities import TIMESCALES, latex_label, latex_symbol, output_unit  # noqa: E402
 from radwalk.results.files import atomic_path  # noqa: E402
+from radwalk.results.products import BAND_PERCENTILES, FitProducts  # noqa: E402
 
 DPI = 110
 STYLE = {"font.size": 10, "axes.labelsize": 11, "axes.titlesize": 11, "xtick.labelsize": 9,

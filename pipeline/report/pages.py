@@ -42,10 +42,10 @@ from markupsafe import Markup, escape
 
 from radwalk import __version__
 from radwalk.errors import ConfigError
-from radwalk.inference.fit import PPC_POOR
-from radwalk.inference.star import safe_folder_name
 from radwalk.model.quantities import DERIVED_GROUPS, OBS_SHORT, PARAM_SYMBOL, PARAM_WORDS, UNIT_HTML, description
+from radwalk.results.document import PPC_POOR
 from radwalk.results.files import write_text
+from radwalk.results.layout import safe_folder_name
 
 if sys.version_info >= (3, 11):
     import tomllib

@@ -26,8 +26,9 @@ import numpy as np
 from astropy.table import Column, Table
 
 from radwalk import __version__
+from radwalk.results.document import OBSERVED_UNITS
 
-OBSERVED = (("radius", "R_sun"), ("luminosity", "L_sun"), ("teff", "K"))
+OBSERVED = tuple(OBSERVED_UNITS.items())
 PERCENTILE_KEYS = ("p16", "p50", "p84")
 SAMPLER_COLUMNS = ("converged", "acceptance", "tau_max", "ess_min", "steps", "ppc_pvalue", "seconds")
 TEXT_COLUMNS = ("id", "folder", "status", "reason", "warnings", "opacity", "unconstrained")
@@ -166,35 +167,3 @@ def fits_safe(table: Table) -> Table:
             out.replace_column(name, _text_column(name, vals))
     out.meta = {"RADWALK": str(table.meta.get("radwalk_version", __version__)), "NSTARS": len(out)}
     return out
-
-
-def posterior_interval(chain_file, name: str, level: float = 0.95, burn: int = 0, thin: int = 1):
-    """Central credible interval of one sampled parameter from a star's chain.h5.
-
-    Parameters
-    ----------
-    chain_file : str or Path
-        The star's chain.h5.
-    name : str
-        Parameter name (one of the file's ``names`` attribute).
-    level : float
-        Probability inside the interval.
-    burn, thin : int
-        Steps dropped at the start, and thinning (the summary's sampler.burn / sampler.thin).
-
-    Returns
-    -------
-    tuple of float
-        (lower, upper) in the parameter's unit.
-    """
-    import h5py
-
-    with h5py.File(chain_file, "r") as f:
-        names = [n.decode() if isinstance(n, bytes) else str(n) for n in f.attrs["names"]]
-        j = names.index(name)
-        x = np.asarray(f["chain"][burn::thin, :, j]).ravel()
-    x = x[np.isfinite(x)]
-    if x.size == 0:
-        return (math.nan, math.nan)
-    lo, hi = np.percentile(x, [50 * (1 - level), 50 * (1 + level)])
-    return float(lo), float(hi)

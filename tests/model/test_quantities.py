@@ -9,6 +9,7 @@ from radwalk.host.config import RunConfig
 from radwalk.inference.fit import stages_for
 from radwalk.model import quantities as q
 from radwalk.model.forward import SUMMARY_ROWS, model_star, summary_key
+from radwalk.results.document import OBSERVED_UNITS
 
 # astropy spells the solar units its own way; the catalogue keeps the spelling users read
 ASTROPY = {"R_sun": u.R_sun, "L_sun": u.L_sun, "M_sun": u.M_sun}
@@ -49,6 +50,11 @@ def test_units_parse_and_scale_is_the_unit_conversion():
         # IAU 2015 Resolution B3 nominal R_sun and L_sun on both sides (radwalk.constants and astropy)
         assert (1.0 * unit(x.output_unit)).to_value(unit(x.unit)) == pytest.approx(x.scale, rel=1e-12), name
         assert x.factor * x.scale == pytest.approx(1.0, rel=1e-15)
+
+
+def test_observed_block_of_summary_json_uses_the_catalogue_units():
+    for name, text in OBSERVED_UNITS.items():
+        assert q.output_unit(name) == text
 
 
 def test_labels_are_valid_mathtext():

@@ -1,7 +1,7 @@
 """Figures of a fitted star and of a catalog: files, axes, labels, edge cases (no pixel comparisons).
 
 The star products come from real short fits (radwalk.inference.fit.fit_one); the
-catalog documents from radwalk.inference.fit.result_document, as summary.json holds them.
+catalog documents from radwalk.results.document.result_document, as summary.json holds them.
 """
 
 import dataclasses
@@ -20,9 +20,10 @@ import numpy as np  # noqa: E402
 import pytest  # noqa: E402
 
 from radwalk.host.config import RunConfig, SamplerConfig  # noqa: E402
-from radwalk.inference.fit import StarResult, fit_one, result_document  # noqa: E402
+from radwalk.inference.fit import StarResult, fit_one  # noqa: E402
 from radwalk.inference.star import Star, seed_for  # noqa: E402
 from radwalk.report import figures as plots  # noqa: E402
+from radwalk.results.document import result_document  # noqa: E402
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 STAR_KINDS = {"corner_parameters", "corner_timescales", "trace", "profile", "predictive"}

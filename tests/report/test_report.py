@@ -27,13 +27,14 @@ from radwalk.cli.report import add_report_parser, cmd_report
 from radwalk.errors import ConfigError
 from radwalk.host.config import RunConfig, SamplerConfig
 from radwalk.inference.fit import fit_star
-from radwalk.inference.star import Star, safe_folder_name
+from radwalk.inference.star import Star
 from radwalk.report.pages import (
     interval,
     star_page_name,
     unconstrained_sentence,
     write_report,
 )
+from radwalk.results.layout import safe_folder_name
 from radwalk.run.orchestrate import write_run_toml
 
 SCRIPT_ID = "<script>alert(1)</script>"

@@ -9,9 +9,8 @@ from astropy.table import MaskedColumn, Table
 
 from radwalk import constants as k
 from radwalk.errors import CatalogError
-from radwalk.inference.star import Star, safe_folder_name
+from radwalk.inference.star import Star
 from radwalk.run.catalog import read_catalog
-from radwalk.run.orchestrate import star_folder
 
 IDS = ["sun-like", "warm", "hot"]
 R = [1.0, 1.4, 2.1]
@@ -253,20 +252,3 @@ def test_star_matches_from_user_units(tmp_path):
     cat = read_catalog(_write(table(), tmp_path / "c.ecsv"))
     assert cat.stars[2].star == Star.from_user_units("hot", 2.1, 0.1, 30.0, 2.0, 9500.0, 250.0)
 
-
-def test_unsafe_ids_map_to_safe_unique_folders_inside(tmp_path):
-    ids = ["../x", "a/b", "a_b", "name with spaces", "<script>alert(1)</script>", "..", ".", "/etc/passwd",
-           "a\\b", "Ünïcode ☆", "x" * 200]
-    t = Table({"id": ids, "radius": [1.0] * len(ids), "radius_err": [0.1] * len(ids)})
-    cat = read_catalog(_write(t, tmp_path / "c.ecsv"))
-    assert [e.id for e in cat.stars] == ids
-    out = tmp_path / "run"
-    folders = [star_folder(out, sid) for sid in ids]
-    assert len(set(folders)) == len(ids)
-    assert len({f.name.lower() for f in folders}) == len(ids)
-    for f in folders:
-        assert f.parent == (out / "stars").resolve()
-        assert all(c.isalnum() or c in "._-" for c in f.name) and f.name.isascii()
-        assert not f.name.startswith(".")
-        assert len(f.name) <= 80
-    assert safe_folder_name("a_b") == "a_b" and star_folder(out, "a/b").name != "a_b"

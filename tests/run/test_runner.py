@@ -25,15 +25,9 @@ from radwalk.cli.demo import add_demo_parser
 from radwalk.cli.run import add_run_parser, cmd_run
 from radwalk.errors import ConfigError, RadwalkError
 from radwalk.host.config import RunConfig
-from radwalk.run.orchestrate import (
-    STATE_FILE,
-    _DaskExecutor,
-    load_run_config,
-    local_cluster,
-    run_catalog,
-    star_folder,
-    worker_plugins,
-)
+from radwalk.results.layout import STATE_FILE, star_folder
+from radwalk.run.executors import _DaskExecutor, local_cluster, worker_plugins
+from radwalk.run.orchestrate import load_run_config, run_catalog
 
 ROOT = Path(__file__).resolve().parents[2]
 FAST_TOML = """\
@@ -373,7 +367,7 @@ def test_plugin_reaches_a_worker_that_cannot_see_the_file(base, plugin_config, t
     # As on a remote cluster: the workers get the uploaded copy once the original path is gone.
 
     from radwalk.run.catalog import read_catalog
-    from radwalk.run.orchestrate import plugin_hashes
+    from radwalk.run.state import plugin_hashes
 
     config, path = plugin_config
     star = read_catalog(write_catalog(tmp_path / "one.ecsv", rows=["sun like"])).stars[0].star
@@ -484,7 +478,7 @@ def test_demo_catalog_is_reproducible_and_has_its_awkward_rows(tmp_path):
 def test_demo_truths_inside_95_percent_intervals(tmp_path):
     # The stars are drawn from the model itself (make_demo.py), so the 95 % intervals must cover the
     # truths for at least 90 % of the converged stars, for each parameter.
-    from radwalk.run.orchestrate import demo_paths, demo_recovery
+    from radwalk.run.demo import demo_paths, demo_recovery
 
     paths = demo_paths()
     out = tmp_path / "demo"

@@ -1,0 +1,117 @@
+"""Derived quantities of posterior samples: transport quantities, profile bands, plugin quantities,
+the posterior-predictive check and the reachability check of the best model.
+
+Units come from the quantity catalogue (:mod:`radwalk.model.quantities`):
+every derived value leaves here in its output unit.
+"""
+
+from __future__ import annotations
+
+import warnings
+
+import numpy as np
+
+from radwalk.errors import ModelError, PluginError, ValidityWarning
+from radwalk.inference.posterior import Posterior
+from radwalk.model.quantities import CATALOGUE, quantity, register_plugin_quantity
+from radwalk.physics.composition import mu
+from radwalk.results.document import NO_REACH_SIGMA
+from radwalk.results.products import BAND_FIELDS, BAND_PERCENTILES
+
+
+def check_reachable(post: Posterior, theta_map):
+    """Raises ModelError when the best model is still far from a measured observable."""
+    pred = post.predict(theta_map[None, :])
+    obs = post.observed
+    for key in obs.present():
+        p = float(pred[key][0])
+        v, e = obs.values[key], obs.errors[key]
+        if not np.isfinite(p) or abs(p - v) / e > NO_REACH_SIGMA and abs(p - v) / v > 0.1:
+            q = quantity(key)
+            best = "none" if not np.isfinite(p) else f"{q.to_output(p):.4g} {q.output_unit}"
+            raise ModelError(
+                f"no model within the priors reaches {q.plain} = {q.to_output(v):.4g} {q.output_unit} "
+                f"(closest: {best}, with relation {post.stages.relation.name!r})"
+            )
+
+
+def derive(post: Posterior, samples: np.ndarray):
+    """Transport quantities and predictions on the given samples; also profile bands.
+
+    Parameters
+    ----------
+    post : Posterior
+    samples : ndarray [N, ndim]
+        Sampled parameters followed by those drawn from their priors.
+
+    Returns
+    -------
+    derived : dict
+        name -> [n] in output units, over the n samples that gave a model star.
+    bands : dict
+        field -> [5, g], the :data:`radwalk.results.products.BAND_PERCENTILES` of each profile field.
+    r_rel : ndarray [g]
+        The profile's grid in r/R.
+    notes : list of str
+        Validity warnings.
+    ok : ndarray of bool [N]
+        Samples that gave a model star.
+    """
+    vals = post.values(samples)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", ValidityWarning)
+        pred = post.stages.predict(vals)
+        ok = np.isfinite(pred["radius"]) & np.isfinite(pred["luminosity"])
+        vals_ok = {kk: (v[ok] if np.ndim(v) else v) for kk, v in vals.items()}
+        prof, tr = post.stages.structure(vals_ok, pred["radius"][ok], pred["luminosity"][ok])
+    notes = [str(w.message) for w in caught]
+    notes += post.stages.validity_messages(vals_ok, prof)
+    derived = {}
+    for key in ("radius", "luminosity", "teff"):
+        derived[key] = pred[key][ok] * quantity(key).factor
+    derived["mu"] = np.broadcast_to(mu(vals_ok["X"], vals_ok["Z"]), (int(ok.sum()),)).copy()
+    for key, v in tr.scalars.items():
+        derived[key] = v * (CATALOGUE[key].factor if key in CATALOGUE else 1.0)
+    derived.update(plugin_quantities(post.stages, prof, vals_ok, tr, set(derived)))
+    fields = {"rho": prof.rho, "T": prof.T, **tr.fields}
+    bands = {f: np.percentile(fields[f], BAND_PERCENTILES, axis=0) for f in BAND_FIELDS}
+    return derived, bands, prof.r[0] / prof.R[0], notes, ok
+
+
+def plugin_quantities(stages, profile, values, tr, taken: set) -> dict:
+    """Quantities added by plugins' ``radwalk_derived_quantities`` hooks, name -> [n]."""
+    hook = stages.registry.derived_hooks()
+    if not hook.get_hookimpls():
+        return {}
+    out = {}
+    for extra in hook(profile=profile, opacity=stages.bound_opacity(values), quantities=dict(tr.scalars)):
+        for name, item in (extra or {}).items():
+            try:
+                arr, unit, _desc = item
+            except (TypeError, ValueError):
+                raise PluginError(f"derived quantity {name!r} must be (values, unit, description)") from None
+            if name in taken or name in out:
+                raise PluginError(f"derived quantity {name!r} is already defined; choose another name")
+            arr = np.broadcast_to(np.asarray(arr, dtype=float), (profile.n,)).copy()
+            register_plugin_quantity(name, unit)
+            out[name] = arr
+    return out
+
+
+def ppc_pvalue(post: Posterior, samples, rng: np.random.Generator):
+    """Posterior-predictive p-value of chi^2: replicated data as extreme as the observed."""
+    pred = post.predict(samples)
+    obs = post.observed
+    lik = post.stages.likelihood
+    floors = {p.name: p.default for p in lik.params}
+    floors.update({kk: v for kk, v in post.fixed.items() if kk.startswith("floor_")})
+    chi_obs = np.zeros(samples.shape[0])
+    chi_rep = np.zeros(samples.shape[0])
+    for key in obs.present():
+        v, e = obs.values[key], obs.errors[key]
+        sigma = np.sqrt(e**2 + (floors.get(f"floor_{key}", 0.0) * v) ** 2)
+        rep = pred[key] + sigma * rng.standard_normal(samples.shape[0])
+        chi_obs += ((v - pred[key]) / sigma) ** 2
+        chi_rep += ((rep - pred[key]) / sigma) ** 2
+    good = np.isfinite(chi_obs)
+    return float(np.mean(chi_rep[good] >= chi_obs[good])) if good.any() else float("nan")

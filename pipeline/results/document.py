@@ -1,0 +1,79 @@
+"""The per-star summary document (summary.json): how it is put together and read back, and its thresholds.
+
+A document holds ``id``, ``status`` (one of :data:`STATUSES`), ``reason``,
+``observed`` (name -> {"value", "error"} in :data:`OBSERVED_UNITS`), ``feh``
+([value, error] in dex, or null), ``seed``, ``radwalk_version`` and
+``seconds``; a fitted star adds the fit's summary (``opacity``, ``stages``,
+``parameters``, ``fixed``, ``derived``, ``sampler``, ``ppc_pvalue``,
+``unconstrained``, ``warnings``, ``plots`` and, when several opacity laws
+were fitted, ``comparison``).  Every percentile entry holds ``p16``, ``p50``
+and ``p84`` (:data:`PERCENTILES`).
+"""
+
+from __future__ import annotations
+
+import json
+from pathlib import Path
+
+from radwalk import __version__
+
+STATUSES = ("ok", "not-converged", "failed")
+PERCENTILES = (16.0, 50.0, 84.0)  # the p16, p50, p84 of every parameter and derived quantity
+PPC_POOR = 0.01  # posterior-predictive p-value below which the fit is flagged as poor
+NO_REACH_SIGMA = 5.0  # an observable this many sigma from the best model cannot be reached
+
+# Units of the document's "observed" block (the catalogue's output units of these observables).
+OBSERVED_UNITS = {"radius": "R_sun", "luminosity": "L_sun", "teff": "K"}
+
+
+def document(star_id: str, status: str, reason: str, observed: dict, feh, seed: int, seconds: float,
+             **rest) -> dict:
+    """A summary document from its parts.
+
+    Parameters
+    ----------
+    star_id : str
+    status : str
+        One of :data:`STATUSES`.
+    reason : str
+        Why the star failed or did not converge ("" when ok).
+    observed : dict
+        name -> (value, error) in :data:`OBSERVED_UNITS` (NaN: not measured).
+    feh : tuple of float or None
+        ([Fe/H], error) in dex.
+    seed : int
+        The run's global seed.
+    seconds : float, s
+        Wall time of the star's fit.
+    **rest
+        Further entries, appended in order (the fit's summary, ``catalog_row``, ...).
+    """
+    return {
+        "id": star_id, "status": status, "reason": reason,
+        "observed": {key: {"value": v, "error": e} for key, (v, e) in observed.items()},
+        "feh": list(feh) if feh else None,
+        "seed": seed, "radwalk_version": __version__, "seconds": seconds,
+        **rest,
+    }
+
+
+def result_document(star, config, result) -> dict:
+    """summary.json of one fitted (or failed) star.
+
+    Parameters
+    ----------
+    star : radwalk.inference.star.Star
+    config : radwalk.host.config.RunConfig
+    result : radwalk.inference.fit.StarResult
+    """
+    return document(star.id, result.status, result.reason, star.user_values(), star.feh, config.seed,
+                    result.seconds, **result.summary)
+
+
+def read_document(path) -> dict | None:
+    """A summary.json as a dict; None when it is missing, unreadable or not a JSON object."""
+    try:
+        doc = json.loads(Path(path).read_text(encoding="utf-8"))
+    except (OSError, ValueError):
+        return None
+    return doc if isinstance(doc, dict) else None

@@ -1,0 +1,32 @@
+"""A fitted star's products in memory: what the per-star figures draw (samples, derived quantities, bands).
+
+The fit (radwalk.inference.fit) fills a :class:`FitProducts`; the figures
+(radwalk.report.figures) read it without importing the fit.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+
+BAND_PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)  # the rows of every profile band: 95 % and 68 % and the median
+BAND_FIELDS = ("rho", "T", "kappa", "mean_free_path", "diffusion_time_cumulative")
+
+
+@dataclass
+class FitProducts:
+    """Everything the plots and the report need about one fitted star (in memory)."""
+
+    star: object  # radwalk.inference.star.Star
+    opacity: str
+    chain: object  # radwalk.inference.sampler.Chain
+    param_names: list  # sampled parameters first (as in chain), then those drawn from their priors
+    param_labels: list
+    param_units: list
+    priors: list
+    samples: np.ndarray  # [N, ndim] thinned
+    derived: dict  # name -> [N] in output units
+    r_rel: np.ndarray  # [g]
+    bands: dict  # field -> [5, g]
+    observed: dict  # name -> (value, err) in R_sun, L_sun, K

@@ -1,0 +1,221 @@
+"""Executors of a catalog run: a local process pool or a Dask cluster, and the per-star task they run.
+
+``local``
+    A process pool (``concurrent.futures.ProcessPoolExecutor``) with the
+    "spawn" start method; on Linux each worker asks the kernel to kill it
+    when the run dies, so a SIGKILLed run leaves no worker writing on.
+    A script that calls :func:`radwalk.run.orchestrate.run_catalog` needs the
+    usual ``if __name__ == "__main__":`` guard, as with any spawned pool.
+``dask``
+    A ``dask.distributed`` Client on ``scheduler``, or a LocalCluster whose
+    scheduler and workers listen on 127.0.0.1 only, without a dashboard.
+    Plugin files are uploaded to the workers (``Client.upload_file``, stored
+    under their content hash); a worker that cannot see the original path,
+    or sees a different file there, loads the uploaded copy.
+
+This is the only module that imports ``distributed``.  Every executor offers
+``slots``, ``submit(star, config, folder, plots, hashes)``, ``wait(pending)``
+-> (done, rest), ``result(future)`` and ``close(cancel)``.
+"""
+
+from __future__ import annotations
+
+import concurrent.futures as cf
+import logging
+import multiprocessing as mp
+import os
+import shutil
+import signal
+import sys
+import tempfile
+from pathlib import Path
+
+from radwalk.errors import ConfigError, PluginError, RadwalkError
+from radwalk.host.config import RunConfig
+from radwalk.run.state import file_sha
+
+DASK_CONNECT_TIMEOUT_S = 5
+
+
+def _upload_name(sha: str) -> str:
+    return f"radwalk_plugin_{sha[:20]}.py"
+
+
+def worker_plugins(plugins: tuple, hashes: dict) -> tuple:
+    """Plugin paths usable on this machine: the original file if it is the same, else the uploaded copy.
+
+    Raises
+    ------
+    PluginError
+        When neither is there.
+    """
+    out = []
+    for p in plugins:
+        want = hashes.get(p)
+        try:
+            if want is None or file_sha(p) == want:
+                out.append(p)
+                continue
+        except OSError:
+            pass
+        copy = None
+        try:
+            from distributed import get_worker
+
+            copy = Path(get_worker().local_directory) / _upload_name(want)
+        except (ImportError, ValueError):
+            copy = None
+        if copy is not None and copy.is_file() and file_sha(copy) == want:
+            out.append(str(copy))
+            continue
+        raise PluginError(f"plugin file {p} is not on this worker (nor an uploaded copy of it)", plugin=p)
+    return tuple(out)
+
+
+def _star_task(star, config: RunConfig, folder: str, plots: bool, hashes: dict | None = None):
+    """Runs on a worker: the per-star task with the worker's own view of the plugin files."""
+    from radwalk.inference.fit import fit_star
+
+    if hashes:
+        config = config.with_changes(plugins=worker_plugins(tuple(config.plugins), hashes))
+    return fit_star(star, config, outdir=folder, plots=plots)
+
+
+def _die_with_parent():
+    """Linux: the kernel kills this worker when its parent dies (a SIGKILLed run leaves no orphan).
+
+    An orphan would go on writing its star's folder while a resumed run computes
+    the same star there.
+    """
+    if not sys.platform.startswith("linux"):
+        return
+    try:
+        import ctypes
+
+        ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL)  # 1 = PR_SET_PDEATHSIG
+    except (OSError, AttributeError):
+        return
+    if os.getppid() == 1:  # the parent died before prctl took effect
+        os._exit(1)
+
+
+def _pool_init():
+    # The parent handles Ctrl-C and stops the pool; workers must not each print a traceback.
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    os.environ.setdefault("MPLBACKEND", "Agg")
+    _die_with_parent()
+
+
+def _start_method() -> str:
+    # "spawn": a fork of a parent that runs threads (the progress bar's monitor, a Dask client)
+    # can deadlock, and under "forkserver" the workers are the fork server's children, which
+    # outlives a killed run, so they would not die with it.  Workers import the package once
+    # (about 2 s), nothing against minutes of stars.
+    return "spawn"
+
+
+class _LocalExecutor:
+    name = "local"
+
+    def __init__(self, workers: int):
+        self.workers = workers
+        ctx = mp.get_context(_start_method())
+        self.pool = cf.ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_pool_init)
+        self.slots = workers
+
+    def submit(self, *args):
+        return self.pool.submit(_star_task, *args)
+
+    def wait(self, pending):
+        done, rest = cf.wait(pending, return_when=cf.FIRST_COMPLETED)
+        return done, set(rest)
+
+    def result(self, fut):
+        try:
+            return fut.result()
+        except cf.process.BrokenProcessPool:
+            raise RadwalkError("a worker process died (out of memory or killed?); run the same command again "
+                               "to resume") from None
+
+    def close(self, cancel: bool = False):
+        if cancel:
+            procs = list(getattr(self.pool, "_processes", {}).values())
+            self.pool.shutdown(wait=False, cancel_futures=True)
+            for p in procs:  # stop the stars in flight now: they are recomputed on resume
+                if p.is_alive():
+                    p.terminate()
+        else:
+            self.pool.shutdown(wait=True)
+
+
+def local_cluster(workers: int):
+    """A Dask LocalCluster listening on 127.0.0.1 only: scheduler, workers, nannies and HTTP servers.
+
+    The scheduler always runs an HTTP server (health and metrics routes, and the
+    dashboard when bokeh is installed) that would bind every interface on port
+    8787 by default; here it binds a free loopback port and the dashboard is off.
+    One thread per worker: parallelism is over stars, in processes.
+    """
+    from distributed import LocalCluster
+
+    return LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
+                        dashboard_address="127.0.0.1:0", worker_dashboard_address="127.0.0.1:0",
+                        scheduler_kwargs={"dashboard": False}, silence_logs=logging.ERROR)
+
+
+class _DaskExecutor:
+    name = "dask"
+
+    def __init__(self, workers: int, scheduler: str | None, config: RunConfig, hashes: dict):
+        from distributed import Client
+
+        self.cluster = None
+        if scheduler:
+            try:
+                self.client = Client(scheduler, timeout=f"{DASK_CONNECT_TIMEOUT_S}s")
+            except (OSError, TimeoutError, ValueError, TypeError) as exc:
+                raise ConfigError(f"no Dask scheduler answered at {scheduler} within {DASK_CONNECT_TIMEOUT_S} s "
+                                  f"({type(exc).__name__}: {' '.join(str(exc).split())[:200]})") from None
+        else:
+            self.cluster = local_cluster(workers)
+            self.client = Client(self.cluster)
+        self.slots = max(1, sum(self.client.nthreads().values()))
+        if hashes:
+            self._ship(hashes)
+
+    def _ship(self, hashes: dict):
+        with tempfile.TemporaryDirectory(prefix="radwalk-plugins-") as tmp:
+            for path, sha in hashes.items():
+                copy = Path(tmp) / _upload_name(sha)
+                shutil.copyfile(path, copy)
+                self.client.upload_file(str(copy), load=False)
+
+    def submit(self, *args):
+        return self.client.submit(_star_task, *args, pure=False)
+
+    def wait(self, pending):
+        from distributed import wait
+
+        done, rest = wait(list(pending), return_when="FIRST_COMPLETED")
+        return set(done), set(rest)
+
+    def result(self, fut):
+        return fut.result()
+
+    def close(self, cancel: bool = False):
+        try:
+            self.client.close()
+        finally:
+            if self.cluster is not None:
+                self.cluster.close()
+
+
+def make_executor(kind: str, workers: int, scheduler: str | None, config: RunConfig, hashes: dict):
+    """A started executor of ``kind`` ("local" or "dask"); ConfigError for an unknown kind or a bad pairing."""
+    if kind == "local":
+        if scheduler:
+            raise ConfigError("--scheduler needs --executor dask")
+        return _LocalExecutor(workers)
+    if kind == "dask":
+        return _DaskExecutor(workers, scheduler, config, hashes)
+    raise ConfigError(f"unknown executor {kind!r}; choose local or dask")
