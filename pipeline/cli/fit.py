@@ -2,7 +2,6 @@
 
 from __future__ import annotations
 
-import json
 import math
 from pathlib import Path
 
@@ -75,6 +74,7 @@ def cmd_fit(args):
     from radwalk.inference.fit import fit_star
     from radwalk.inference.star import Star
     from radwalk.results.document import result_document
+    from radwalk.results.files import dumps
     from radwalk.results.layout import safe_folder_name
 
     cfg = config_from_args(args)
@@ -101,7 +101,7 @@ def cmd_fit(args):
 
         raise ModelError(result.reason)
     if args.json:
-        print(json.dumps(doc, indent=2))
+        print(dumps(doc))
     else:
         print(format_fit(doc))
         print(f"\noutputs in {out}/ (summary.json, chain.h5, plots)")

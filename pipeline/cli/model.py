@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import json
-
 from radwalk.cli.args import finite_float, parse_set
 from radwalk.host.stages import STAGE_TABLE
 
@@ -46,7 +44,9 @@ def cmd_model(args):
 
         write_table(interior.profile_table, args.profile_out)
     if args.json:
-        print(json.dumps(interior.summary, indent=2))
+        from radwalk.results.files import dumps
+
+        print(dumps(interior.summary))
     else:
         print(format_summary(interior.summary))
     return 0

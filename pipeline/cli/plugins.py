@@ -2,8 +2,6 @@
 
 from __future__ import annotations
 
-import json
-
 
 def add_plugins_parser(sub, common):
     pl = sub.add_parser("plugins", parents=[common], help="list stages, components and their parameters")
@@ -14,11 +12,12 @@ def add_plugins_parser(sub, common):
 
 def cmd_plugins(args):
     from radwalk.host.registry import Registry
+    from radwalk.results.files import dumps
 
     registry = Registry(plugin_files=args.plugin)
     info = registry.describe()
     if args.json:
-        print(json.dumps(info, indent=2))
+        print(dumps(info))
         return 0
     for stage, comps in info.items():
         print(f"{stage}:")

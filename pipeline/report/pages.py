@@ -125,7 +125,7 @@ def star_page_name(folder: str) -> str:
 
 
 def _read_summary(path: Path) -> dict:
-    # json accepts NaN and Infinity, which summary.json uses for missing values
+    # missing numbers are null; json also reads the NaN of folders written before strict JSON
     return json.loads(path.read_text(encoding="utf-8"))
 
 

@@ -7,7 +7,8 @@ A document holds ``id``, ``status`` (one of :data:`STATUSES`), ``reason``,
 ``parameters``, ``fixed``, ``derived``, ``sampler``, ``ppc_pvalue``,
 ``unconstrained``, ``warnings``, ``plots`` and, when several opacity laws
 were fitted, ``comparison``).  Every percentile entry holds ``p16``, ``p50``
-and ``p84`` (:data:`PERCENTILES`).
+and ``p84`` (:data:`PERCENTILES`).  The file is strict JSON: a number that is
+missing or not finite is ``null``, and readers take null as "no value".
 """
 
 from __future__ import annotations

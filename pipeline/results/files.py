@@ -1,12 +1,20 @@
-"""Atomic file writing: every output goes to a temporary file first, then os.replace."""
+"""Atomic file writing (every output goes to a temporary file first, then os.replace) and strict JSON.
+
+Every JSON radwalk writes or prints (summary.json, state.json, ``--json``) is
+strict: no NaN or Infinity, which many JSON readers refuse; a missing or
+non-finite number is ``null``.
+"""
 
 from __future__ import annotations
 
 import json
+import math
 import os
 import tempfile
 from contextlib import contextmanager
 from pathlib import Path
+
+import numpy as np
 
 _UMASK = os.umask(0)
 os.umask(_UMASK)
@@ -33,8 +41,33 @@ def write_text(path, text: str):
         tmp.write_text(text)
 
 
+def strict(obj):
+    """A copy of ``obj`` fit for strict JSON: non-finite floats become None, numpy values plain Python.
+
+    Dicts, lists and tuples are walked (tuples become lists); numpy scalars and
+    arrays (at any depth) become floats, ints, bools and lists.
+    """
+    if isinstance(obj, dict):
+        return {key: strict(v) for key, v in obj.items()}
+    if isinstance(obj, (list, tuple)):
+        return [strict(v) for v in obj]
+    if isinstance(obj, np.ndarray):
+        return strict(obj.tolist())
+    if isinstance(obj, np.generic):
+        obj = obj.item()
+    if isinstance(obj, float) and not math.isfinite(obj):
+        return None
+    return obj
+
+
+def dumps(obj, indent: int | None = 2) -> str:
+    """Strict JSON text of ``obj`` (see :func:`strict`); ValueError if a non-finite number slipped through."""
+    return json.dumps(strict(obj), indent=indent, allow_nan=False)
+
+
 def write_json(path, obj):
-    write_text(path, json.dumps(obj, indent=2, allow_nan=True) + "\n")
+    """Writes ``obj`` as strict JSON, atomically."""
+    write_text(path, dumps(obj) + "\n")
 
 
 def write_table(table, path, format: str | None = None):

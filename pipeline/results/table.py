@@ -9,7 +9,8 @@ their errors (``radius_obs``, ``radius_obs_err``, ... in R_sun, L_sun, K;
 derived quantity ``<name>_p16``, ``<name>_p50``, ``<name>_p84``; then
 ``converged``, ``acceptance``, ``tau_max``, ``ess_min``, ``steps``,
 ``ppc_pvalue``, ``seconds``.  Columns carry astropy units.  A failed star
-has NaN in every numeric column (and ``converged`` false).
+has NaN in every numeric column (and ``converged`` false); so has a number
+that summary.json holds as null.
 
 :func:`build_summary_table` consumes its documents one at a time and keeps
 only the flat rows, so a large catalog's table does not hold every star's

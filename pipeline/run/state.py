@@ -21,6 +21,7 @@ from radwalk import __version__
 from radwalk.errors import ConfigError, PluginError
 from radwalk.host.config import RunConfig
 from radwalk.results.document import STATUSES, read_document
+from radwalk.results.files import strict
 from radwalk.results.layout import RUN_FILES, STAR_SUMMARY, STARS_DIR, STATE_FILE, star_folder
 from radwalk.run.catalog import Catalog
 
@@ -75,7 +76,8 @@ def _flatten(d: dict, prefix: str = "") -> dict:
 
 
 def _config_diff(old: dict, new: dict, limit: int = 6) -> str:
-    a, b = _flatten(old or {}), _flatten(new)
+    # compared as written: the new config goes through the same strict conversion as state.json
+    a, b = _flatten(old or {}), _flatten(strict(new))
     keys = sorted(set(a) | set(b))
     diffs = [f"{key}: {a.get(key, '(unset)')!r} -> {b.get(key, '(unset)')!r}" for key in keys
              if json.dumps(a.get(key)) != json.dumps(b.get(key))]

@@ -24,6 +24,10 @@ optimizer_starts = 2
 """
 
 
+def _refuse(name):
+    raise ValueError(f"{name} is not JSON")
+
+
 @pytest.fixture
 def fast_config(tmp_path):
     p = tmp_path / "fast.toml"
@@ -50,8 +54,8 @@ def test_fit_json_without_teff(tmp_path, capsys, fast_config):
     code, text, _ = run(capsys, "fit", "--radius", "1.5", "0.05", "--luminosity", "4", "0.3", "--config",
                         fast_config, "--out", str(tmp_path / "a"), "--json", "--no-plots")
     assert code == 0
-    doc = json.loads(text)
-    assert doc["observed"]["teff"]["value"] != doc["observed"]["teff"]["value"]  # NaN: not measured
+    doc = json.loads(text, parse_constant=_refuse)  # strict JSON: no NaN or Infinity
+    assert doc["observed"]["teff"]["value"] is None  # null: not measured
     assert "teff" in doc["derived"]
 
 

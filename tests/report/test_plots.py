@@ -24,6 +24,7 @@ from radwalk.inference.fit import StarResult, fit_one  # noqa: E402
 from radwalk.inference.star import Star, seed_for  # noqa: E402
 from radwalk.report import figures as plots  # noqa: E402
 from radwalk.results.document import result_document  # noqa: E402
+from radwalk.results.files import dumps  # noqa: E402
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 STAR_KINDS = {"corner_parameters", "corner_timescales", "trace", "profile", "predictive"}
@@ -297,8 +298,8 @@ def documents(fitted, no_teff):
     failed = result_document(bad_star, CONFIG, StarResult("bad", "failed", "no model reaches R", {}, 0.1))
     blind = Star.from_user_units("blind", None, None, 2.0, 0.1, None, None)
     failed_no_numbers = result_document(blind, CONFIG, StarResult("blind", "failed", "broken", {}, 0.1))
-    # as read back from summary.json (NaN survives as NaN)
-    return [json.loads(json.dumps(d, allow_nan=True)) for d in (ok, nt, failed, failed_no_numbers)]
+    # as read back from summary.json (strict JSON: a missing number is null)
+    return [json.loads(dumps(d)) for d in (ok, nt, failed, failed_no_numbers)]
 
 
 def legend_texts(ax):

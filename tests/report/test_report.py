@@ -218,7 +218,7 @@ def test_failed_star_shows_reason_and_observations_only(run_dir):
     text = parse(page_of(run_dir, "a/b")).all_text()
     assert s["reason"] in text
     assert "This star could not be fitted" in text
-    assert "50 ± 1" in text and "not measured" in text  # T_eff was not given (NaN in summary.json)
+    assert "50 ± 1" in text and "not measured" in text  # T_eff was not given (null in summary.json)
     assert "Parameters" not in text and "Sampler diagnostics" not in text
     assert s["reason"] in parse(run_dir / "report" / "index.html").all_text()
 
