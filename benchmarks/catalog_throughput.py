@@ -21,6 +21,7 @@ import time
 from pathlib import Path
 
 from astropy.table import Table
+
 from radwalk.host.config import SamplerConfig
 from radwalk.run.demo import demo_paths
 from radwalk.run.orchestrate import load_run_config, run_catalog

@@ -27,9 +27,9 @@ HERE = Path(__file__).resolve().parent
 sys.path.insert(0, str(HERE.parent))
 
 from radwalk import constants as k  # noqa: E402
-from radwalk.physics.composition import X_SUN, Z_SUN  # noqa: E402
-from radwalk.model.stages import StageSet  # noqa: E402
+from radwalk.forward.stages import StageSet  # noqa: E402
 from radwalk.host.registry import Registry  # noqa: E402
+from radwalk.physics.composition import X_SUN, Z_SUN  # noqa: E402
 
 SEED = 20261201
 N_REGULAR = 23

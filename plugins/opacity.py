@@ -1,10 +1,12 @@
-"""Built-in opacity laws: electron scattering, Kramers, H-minus and a combined law.
+"""Built-in opacity components: electron scattering, Kramers, H-minus and the default (combined) law.
+
+Thin adapters: the physics is in :mod:`radwalk.physics.opacity`.
 
 Every law returns a Rosseland-mean opacity in cm^2/g and broadcasts over all
 of its inputs: the host passes rho and T of shape ``[n, ngrid]`` with X, Z and
 the law's parameters of shape ``[n, 1]``, or everything ``[n]``, or scalars.
 
-The Kramers and H-minus coefficients are those of Carroll & Ostlie (1996,
+The three textbook laws use the coefficients of Carroll & Ostlie (1996,
 *An Introduction to Modern Astrophysics*, eqs. 9.22, 9.23 and 9.28), which
 are written in SI units; converted to cgs (m^2/kg -> cm^2/g is x10, rho in
 kg/m^3 is 1e3 rho in g/cm^3) they read
@@ -13,189 +15,37 @@ kg/m^3 is 1e3 rho in g/cm^3) they read
     free-free   3.68e22 g_ff (1 - Z) (1 + X) rho T^-3.5
     H-minus     2.5e-31 (Z / 0.02) rho^(1/2) T^9
 
-Surface points may carry rho = 0 or T = 0: densities are clipped at 0 and
-temperatures at 1 K, which only keeps 0 * inf out of the arithmetic (no law
-here is used below 3000 K).
+The default law (``combined``) is built from the microphysics instead: Saha
+ionisation of H, He and the metals with pressure ionisation; electron
+scattering on the free electrons; hydrogenic bound-free + free-free absorption
+of H and He, Rosseland-averaged over the level populations; H-minus from its
+own Saha equation; Rayleigh scattering by neutral hydrogen; and a metal term
+of Kramers' form calibrated to standard-solar-model opacities (see
+:class:`Combined`).  Its Rosseland averages are computed once, on first use
+(~0.05 s), and kept as a cubic spline in ln T.
+
+Surface points may carry rho = 0 or T = 0: the textbook laws clip densities at
+0 and temperatures at 1 K, which only keeps 0 * inf out of the arithmetic; the
+default law evaluates rho below 1e-30 g/cm^3 at 1e-30 and T outside
+300 K - 3e9 K at those bounds.
 """
 
 from __future__ import annotations
 
 import numpy as np
 
-from radwalk.constants import M_U, SIGMA_T
 from radwalk.host.hookspecs import hookimpl
 from radwalk.host.params import Param, Validity
-
-KRAMERS_BF = 4.34e25  # cm^2/g at rho = 1 g/cm^3, T = 1 K (Carroll & Ostlie 1996, eq. 9.22)
-KRAMERS_FF = 3.68e22  # cm^2/g at rho = 1 g/cm^3, T = 1 K (Carroll & Ostlie 1996, eq. 9.23)
-HMINUS = 2.5e-31  # cm^2/g at rho = 1 g/cm^3, T = 1 K, Z = 0.02 (Carroll & Ostlie 1996, eq. 9.28)
-
-# Paczynski (1983, ApJ 267, 315) fit to the Buchler & Yueh (1976) electron
-# scattering opacity, with degeneracy and Klein-Nishina terms (from memory).
-HOT_DEGENERACY = 2.7e11  # K^2 cm^3 / g
-HOT_KLEIN_NISHINA_T = 4.5e8  # K
-HOT_KLEIN_NISHINA_POWER = 0.86
-
-# Novotny (1973, p. 469) fit of the guillotine factor, t = 0.708 (rho (1+X))^0.2
-# with rho in kg/m^3 (the SI form Carroll & Ostlie quote; from memory that the
-# density there is in SI).  In cgs: t = 0.708 * 1e3^0.2 (rho (1+X))^0.2 = 2.82 (...)^0.2.
-GUILLOTINE_FIT = 0.708
-GUILLOTINE_RANGE = (1.0, 100.0)  # range Carroll & Ostlie give for t
-
-MOLECULAR_PER_Z = 0.1  # cm^2/g per unit Z: molecular floor (common practice, no source)
-
-# H-minus needs free electrons, which at Z -> 0 come from hydrogen itself; an
-# effective metallicity floor keeps the law positive at Z = 0 (order of
-# magnitude, no source; far below the law's validity range Z >= 0.001).
-HMINUS_Z_FLOOR = 1e-4
-
-_T_FLOOR = 1.0  # K; see the module docstring
-
-
-def _arrays(*values):
-    return tuple(np.asarray(v, dtype=float) for v in values)
-
-
-def _fields(rho, T):
-    rho, T = _arrays(rho, T)
-    return np.maximum(rho, 0.0), np.maximum(T, _T_FLOOR)
-
-
-def _full(value, *inputs):
-    """``value`` broadcast to the common shape of all inputs (a fresh array)."""
-    shape = np.broadcast_shapes(*(np.shape(a) for a in inputs))
-    return np.array(np.broadcast_to(value, shape), dtype=float)
-
-
-def thomson(X):
-    """Electron-scattering opacity sigma_T / (mu_e m_u) of a fully ionised gas.
-
-    Parameters
-    ----------
-    X : array_like, dimensionless
-        Hydrogen mass fraction (mu_e = 2 / (1 + X)).
-
-    Returns
-    -------
-    ndarray, cm^2/g
-        About 0.2004 (1 + X).
-    """
-    return SIGMA_T * (1.0 + np.asarray(X, dtype=float)) / (2.0 * M_U)
-
-
-def hot_scattering_factor(rho, T):
-    """Reduction of electron scattering by degeneracy and Klein-Nishina effects.
-
-    Parameters
-    ----------
-    rho : array_like, g/cm^3
-    T : array_like, K
-
-    Returns
-    -------
-    ndarray, dimensionless
-        1 / [(1 + 2.7e11 rho / T^2)(1 + (T / 4.5e8)^0.86)], in (0, 1]
-        (Paczynski 1983 fit to Buchler & Yueh 1976; from memory).
-    """
-    rho, T = _fields(rho, T)
-    with np.errstate(over="ignore"):
-        degeneracy = 1.0 + HOT_DEGENERACY * rho / T**2
-        klein_nishina = 1.0 + (T / HOT_KLEIN_NISHINA_T) ** HOT_KLEIN_NISHINA_POWER
-        return 1.0 / (degeneracy * klein_nishina)
-
-
-def guillotine_fit(rho, X):
-    """Guillotine factor t from the density fit, clipped to [1, 100].
-
-    Parameters
-    ----------
-    rho : array_like, g/cm^3
-    X : array_like, dimensionless
-
-    Returns
-    -------
-    ndarray, dimensionless
-        t = 0.708 (rho_SI (1 + X))^0.2 with rho_SI = 1e3 rho in kg/m^3
-        (Novotny 1973, p. 469), i.e. 2.82 (rho (1 + X))^0.2 in cgs; clipped to
-        the range 1 <= t <= 100 Carroll & Ostlie give, because t < 1 would
-        raise the bound-free opacity above its unscreened hydrogenic value
-        (the fit falls below 1 under about 1e-3 g/cm^3).
-    """
-    rho, X = _arrays(rho, X)
-    t = GUILLOTINE_FIT * (1e3 * np.maximum(rho, 0.0) * (1.0 + X)) ** 0.2
-    return np.clip(t, *GUILLOTINE_RANGE)
-
-
-def guillotine_factor(rho, X, guillotine=0.0):
-    """The guillotine factor actually used: a fixed t >= 1, or the fit below 1."""
-    guillotine = np.asarray(guillotine, dtype=float)
-    return np.where(guillotine >= 1.0, guillotine, guillotine_fit(rho, X))
-
-
-def kramers_bound_free(rho, T, X, Z, g_bf=1.0, guillotine=0.0):
-    """Kramers bound-free opacity, 4.34e25 (g_bf / t) Z (1 + X) rho T^-3.5.
-
-    Parameters
-    ----------
-    rho : array_like, g/cm^3
-    T : array_like, K
-    X, Z : array_like, dimensionless
-    g_bf : array_like, dimensionless
-        Bound-free Gaunt factor.
-    guillotine : array_like, dimensionless
-        Fixed guillotine factor t (>= 1), or a value below 1 for the fit
-        :func:`guillotine_fit`.
-
-    Returns
-    -------
-    ndarray, cm^2/g
-    """
-    rho, T = _fields(rho, T)
-    X, Z, g_bf = _arrays(X, Z, g_bf)
-    t = guillotine_factor(rho, X, guillotine)
-    with np.errstate(over="ignore"):
-        return KRAMERS_BF * (g_bf / t) * Z * (1.0 + X) * rho * T**-3.5
-
-
-def kramers_free_free(rho, T, X, Z, g_ff=1.0):
-    """Kramers free-free opacity, 3.68e22 g_ff (1 - Z)(1 + X) rho T^-3.5.
-
-    Parameters
-    ----------
-    rho : array_like, g/cm^3
-    T : array_like, K
-    X, Z : array_like, dimensionless
-    g_ff : array_like, dimensionless
-        Free-free Gaunt factor.
-
-    Returns
-    -------
-    ndarray, cm^2/g
-    """
-    rho, T = _fields(rho, T)
-    X, Z, g_ff = _arrays(X, Z, g_ff)
-    with np.errstate(over="ignore"):
-        return KRAMERS_FF * g_ff * (1.0 - Z) * (1.0 + X) * rho * T**-3.5
-
-
-def h_minus(rho, T, Z):
-    """H-minus opacity of cool envelopes, 2.5e-31 (Z / 0.02) rho^(1/2) T^9.
-
-    Parameters
-    ----------
-    rho : array_like, g/cm^3
-    T : array_like, K
-    Z : array_like, dimensionless
-        Metal mass fraction (the source of free electrons); floored at 1e-4.
-
-    Returns
-    -------
-    ndarray, cm^2/g
-    """
-    rho, T = _fields(rho, T)
-    Z = np.maximum(np.asarray(Z, dtype=float), HMINUS_Z_FLOOR)
-    with np.errstate(over="ignore"):
-        return HMINUS * (Z / 0.02) * np.sqrt(rho) * T**9
+from radwalk.physics.opacity import (  # noqa: F401  (re-exported for plugin authors and tests)
+    _full,
+    default_law_terms,
+    h_minus,
+    hot_scattering_factor,
+    kramers_bound_free,
+    kramers_free_free,
+    stellar_density,
+    thomson,
+)
 
 
 def _kramers_params() -> tuple[Param, ...]:
@@ -333,53 +183,87 @@ class HMinus:
 
 
 class Combined:
-    """Interior + envelope law: molecular floor plus H-minus in series with the rest.
+    """Default law: Saha-ionised H-He-metal mixture with hydrogenic, H-minus and metal absorption.
 
-    kappa = kappa_mol + 1 / (1/kappa_H- + 1/(kappa_es + kappa_Kramers)) with
-    kappa_mol = 0.1 Z cm^2/g.  The harmonic sum lets H-minus cut the opacity
-    off in cool gas, where it is far below the Kramers value that would
-    otherwise hold, and hands over smoothly to Kramers and electron scattering
-    in the interior (common practice in analytic stellar models, no source).
+    kappa = kappa_es + kappa_H + kappa_He + kappa_H- + kappa_Ray + kappa_Z + kappa_mol, a plain
+    sum of the terms' Rosseland means (common practice, e.g. Kippenhahn, Weigert & Weiss 2012,
+    ch. 17; the Rosseland mean of a sum is at least the sum of the means, so this is a
+    lower bound where the terms' windows overlap).  Every term carries its own
+    ionisation fractions, so no term needs switching off by hand and the sum is smooth
+    (no kinks: the solver differentiates it numerically).  See :func:`default_law_terms`:
+
+    * electron scattering sigma_T n_e / rho on the Saha electrons, with the
+      Paczynski (1983) degeneracy and Klein-Nishina factor (fit to Buchler & Yueh 1976);
+    * hydrogen and helium bound-free + free-free: hydrogenic Kramers cross-sections with
+      Saha-Boltzmann level populations summed over n = 1..400 and Rosseland-averaged at
+      each temperature (exact for that model; no lines);
+    * H-minus from its Saha equation and a published cross-section, and Rayleigh
+      scattering by neutral hydrogen;
+    * metals: Kramers' bound-free form with our guillotine and line factors, calibrated to
+      standard-solar-model opacities at the centre and at the base of the convection zone;
+    * a molecular floor 0.1 Z in cool gas.
+
+    Beyond log R = log rho - 3 log(T/1e6 K) = 2, where no star is, the density saturates
+    smoothly (:func:`stellar_density`).
+
+    Not included: bound-bound (line) absorption of H and He, the iron "Z bump" near
+    2e5 K, molecules beyond the floor, electron conduction (it matters above ~1e4 g/cm^3).
     """
 
     name = "combined"
-    description = "molecular floor + H-minus in series with electron scattering + Kramers, 3e3-1e8 K"
+    description = ("Saha-ionised mixture: electron scattering + hydrogenic H/He + H-minus + "
+                   "calibrated metal absorption, 4e3-1e8 K")
     validity = Validity(
-        T=(3e3, 1e8),
-        rho=(1e-10, 1e3),
+        T=(4e3, 1e8),
+        rho=(1e-12, 1e3),
         Z=(0.0, 0.05),
-        note="stellar envelopes and interiors; good to a factor ~2-3 against tabulated opacities",
+        note=(
+            "stellar envelopes and interiors, log R = log rho - 3 log(T/1e6 K) <= 1 (cooler and "
+            "denser gas is not modelled: no degeneracy beyond electron scattering's, no "
+            "conduction, and beyond log R = 2 the density is held there); calibrated at two points "
+            "of the standard solar model (centre, base of the convection zone), its shape between "
+            "them our own; 0.5-2.5 times Bell & Lin (1994) in the hydrogen ionisation zone at "
+            "1e-10-1e-7 g/cm^3, but 3-10x low at the peak (1.2-2e4 K) above 1e-6 g/cm^3 (no line "
+            "absorption); the iron bump near 2e5 K is absent; below 4000 K molecules are only a floor"
+        ),
     )
 
     def __init__(self):
-        self.params = _kramers_params()
+        self.params = (
+            Param("g_bf", "", 0.1, 10.0, 1.0,
+                  "multiplies the metal absorption term (1 = calibrated to the standard solar model)",
+                  latex=r"$g_{\rm bf}$"),
+            Param("g_ff", "", 0.1, 10.0, 1.0,
+                  "Gaunt factor of the hydrogen and helium bound-free and free-free absorption",
+                  latex=r"$g_{\rm ff}$"),
+            Param("guillotine", "", 0.0, 100.0, 0.0,
+                  "metal guillotine factor t; below 1 (default 0) uses the fit "
+                  "t = sqrt(1 + 8.75 rho (1+X)), rho in g/cm^3",
+                  latex=r"$t$"),
+        )
 
     def kappa(self, rho, T, X, Z, g_bf=1.0, g_ff=1.0, guillotine=0.0):
-        """Combined opacity.
+        """Default opacity: the sum of :func:`default_law_terms`.
 
         Parameters
         ----------
         rho : array_like, g/cm^3
         T : array_like, K
         X, Z : array_like, dimensionless
-        g_bf, g_ff, guillotine : array_like, dimensionless
-            Parameters of the Kramers part (see :class:`Kramers`).
+        g_bf : array_like, dimensionless
+            Multiplier of the metal term.
+        g_ff : array_like, dimensionless
+            Gaunt factor of the hydrogen and helium absorption.
+        guillotine : array_like, dimensionless
+            Fixed metal guillotine factor >= 1, or below 1 for the default.
 
         Returns
         -------
         ndarray, cm^2/g
-            Broadcast shape of all inputs; positive wherever Z > 0.
+            Broadcast shape of all inputs; positive wherever rho > 0 (tested on
+            1e3-1e9 K and 1e-14-1e6 g/cm^3, X from 0 to 1, Z from 0 to 0.05).
         """
-        interior = (
-            thomson(X)
-            + kramers_bound_free(rho, T, X, Z, g_bf, guillotine)
-            + kramers_free_free(rho, T, X, Z, g_ff)
-        )
-        hm = h_minus(rho, T, Z)
-        # 1/0 = inf where rho = 0 makes the series term 0; 1/inf = 0 where H-minus overflows.
-        with np.errstate(divide="ignore"):
-            series = 1.0 / (1.0 / hm + 1.0 / interior)
-        k = MOLECULAR_PER_Z * np.asarray(Z, dtype=float) + series
+        k = sum(default_law_terms(rho, T, X, Z, g_bf, g_ff, guillotine))
         return _full(k, rho, T, X, Z, g_bf, g_ff, guillotine)
 
 

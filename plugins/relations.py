@@ -29,7 +29,7 @@ from radwalk.host.hookspecs import hookimpl
 from radwalk.host.params import Validity
 from radwalk.physics import lane_emden
 from radwalk.physics.composition import X_SUN, Z_SUN, mu
-from radwalk.physics.energy import eps_nuclear
+from radwalk.physics.nuclear import nuclear_rates
 from radwalk.physics.polytrope import eddington_beta
 
 TEMPLATE_INDEX = 3.0
@@ -79,7 +79,7 @@ def nuclear_luminosity(M, R, X, Z):
     rho_c, T_c = central_conditions(M, R, X, Z)
     rho = rho_c[:, None] * theta**3
     T = T_c[:, None] * theta
-    eps = eps_nuclear(rho, T, X[:, None], Z[:, None])
+    eps = nuclear_rates(rho, T, X[:, None], Z[:, None]).eps
     return M * (eps @ w)
 
 
@@ -131,14 +131,13 @@ def _safe_log(v):
 @lru_cache(maxsize=1)
 def _calibration():
     """(C_L, C_E) making the solar-composition 1 M_sun star the nominal Sun."""
-    from radwalk.host.components import BoundOpacity
-    from radwalk.plugins.opacity import Combined
+    from radwalk.physics.opacity import default_kappa
 
     M = np.array([k.M_SUN])
     R = np.array([k.R_SUN])
     X = np.array([X_SUN])
     Z = np.array([Z_SUN])
-    c_l = k.L_SUN / radiative_luminosity(M, R, X, Z, BoundOpacity(Combined()))[0]
+    c_l = k.L_SUN / radiative_luminosity(M, R, X, Z, default_kappa)[0]
     c_e = k.L_SUN / nuclear_luminosity(M, R, X, Z)[0]
     return float(c_l), float(c_e)
 

@@ -101,6 +101,8 @@ class SolvedProfile:
             "convective_turnover_time": np.array([s.local_turnover_time() for s in stars]) / 86400.0,
             "convective_turnover_time_global": np.array([s.global_turnover_time() for s in stars]) / 86400.0,
             "convective_crossing_time": np.array([s.convective_crossing_time("all") for s in stars]) / year,
+            "convective_core_mass_fraction": np.array([s.convective_core_mass_fraction() for s in stars]),
+            "convective_envelope_base_radius": np.array([s.envelope_base_radius() for s in stars]),
         }
         return Profile(
             r=stack("r"), m=stack("m"), rho=stack("rho"), P=P, T=T, beta=beta,

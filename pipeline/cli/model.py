@@ -16,6 +16,9 @@ def add_model_parser(sub, common):
     for stage in STAGE_TABLE:
         if stage.forward:
             m.add_argument(f"--{stage.name}", help=f"{stage.noun} (default {stage.default})")
+    m.add_argument("--age", type=finite_float, metavar="GYR",
+                   help="age in Gyr since the zero-age main sequence (0: zero-age); selects the solved profile "
+                        "and relation unless --profile/--relation name others")
     m.add_argument("--set", action="append", metavar="NAME=VALUE", help="component parameter or option")
     m.add_argument("--json", action="store_true", help="print one JSON object")
     m.add_argument("--profile-out", metavar="FILE", help="write the radial profile (ECSV, with units)")
@@ -27,14 +30,16 @@ def cmd_model(args):
     from pathlib import Path
 
     from radwalk.constants import X_SUN, Z_SUN
+    from radwalk.forward.one_star import format_summary, model_star, with_age
     from radwalk.host.config import RunConfig
     from radwalk.inference.fit import stages_for
-    from radwalk.model.forward import format_summary, model_star
 
     args.X = X_SUN if args.X is None else args.X
     args.Z = Z_SUN if args.Z is None else args.Z
     stages_named = {s.name: getattr(args, s.name) for s in STAGE_TABLE if s.forward and getattr(args, s.name)}
     settings = parse_set(args.set)
+    if args.age is not None:
+        with_age(stages_named, settings, args.age)
     plugins = tuple(str(Path(p).expanduser().resolve()) for p in args.plugin)
     stages = stages_for(RunConfig(stages=stages_named, settings=settings, plugins=plugins))
     params = {k: v for k, v in settings.items() if k not in stages.option_names()}

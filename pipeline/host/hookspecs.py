@@ -91,7 +91,7 @@ def radwalk_derived_quantities(profile, opacity, quantities):
         ``kappa(rho, T, X, Z)`` in cm^2/g with its parameters bound.
     quantities : dict
         The built-in quantities so far, name -> [n] array (see
-        :data:`radwalk.model.quantities.CATALOGUE` for names and units).
+        :data:`radwalk.forward.quantities.CATALOGUE` for names and units).
 
     Returns
     -------

@@ -1,7 +1,7 @@
 """Derived quantities of posterior samples: transport quantities, profile bands, plugin quantities,
 the posterior-predictive check and the reachability check of the best model.
 
-Units come from the quantity catalogue (:mod:`radwalk.model.quantities`):
+Units come from the quantity catalogue (:mod:`radwalk.forward.quantities`):
 every derived value leaves here in its output unit.
 """
 
@@ -12,8 +12,8 @@ import warnings
 import numpy as np
 
 from radwalk.errors import ModelError, PluginError, ValidityWarning
+from radwalk.forward.quantities import CATALOGUE, quantity, register_plugin_quantity
 from radwalk.inference.posterior import Posterior
-from radwalk.model.quantities import CATALOGUE, quantity, register_plugin_quantity
 from radwalk.physics.composition import mu
 from radwalk.results.document import NO_REACH_SIGMA
 from radwalk.results.products import BAND_FIELDS, BAND_PERCENTILES

@@ -19,14 +19,14 @@ from pathlib import Path
 import numpy as np
 
 from radwalk.errors import CatalogError, ConfigError, ModelError, PluginError, RadwalkError, ValidityWarning
+from radwalk.forward.quantities import output_unit
+from radwalk.forward.stages import StageSet
 from radwalk.host.config import RunConfig
 from radwalk.host.registry import Registry
 from radwalk.inference.derived import check_reachable, derive, ppc_pvalue
 from radwalk.inference.posterior import Posterior
 from radwalk.inference.sampler import run_chain
 from radwalk.inference.star import Star, seed_for
-from radwalk.model.quantities import output_unit
-from radwalk.model.stages import StageSet
 from radwalk.results.document import PERCENTILES, PPC_POOR, result_document
 from radwalk.results.files import write_json
 from radwalk.results.layout import STAR_SUMMARY, chain_file_name
@@ -178,11 +178,36 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
         "warnings": warn,
     }
     products = FitProducts(
-        star=star, opacity=stages.opacity.name, chain=chain, param_names=[p.name for p in all_params],
+        star=star, opacity=stages.opacity.name, chain=chain, derived_rows=idx, param_names=[p.name for p in all_params],
         param_labels=[p.latex or p.name for p in all_params], param_units=[p.unit for p in all_params],
         priors=all_priors, samples=flat, derived=derived, r_rel=r_rel, bands=bands,
         observed=star.user_values(),
     )
+    return summary, products
+
+
+def fit_laws(star: Star, config: RunConfig, folder: Path | None = None) -> tuple[dict, dict]:
+    """Fits one star under every opacity law of the config.
+
+    Returns the summary (the primary law's, with a ``comparison`` section when
+    there are several laws) and the in-memory products per law.  With a
+    ``folder``, each law's chain is written there as it grows.
+    """
+    fits, products = {}, {}
+    for j, op in enumerate(config.opacity_names()):
+        chain_path = None
+        if folder is not None:
+            chain_path = folder / chain_file_name(op, primary=j == 0, partial=True)
+        # every law gets the same fresh seed, so a comparison is paired and order-free
+        fits[op], products[op] = fit_one(star, config, seed_for(config.seed, star.id), op, chain_path)
+    summary = dict(fits[config.opacity_names()[0]])
+    if len(fits) > 1:
+        summary["comparison"] = {op: {"parameters": f["parameters"], "derived": f["derived"],
+                                      "warnings": f["warnings"]} for op, f in fits.items()}
+    if folder is not None:
+        for j, op in enumerate(config.opacity_names()):
+            part = folder / chain_file_name(op, primary=j == 0, partial=True)
+            part.replace(folder / chain_file_name(op, primary=j == 0))
     return summary, products
 
 
@@ -193,24 +218,11 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> 
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ValidityWarning)  # collected into the summary instead
-            fits, products = {}, {}
-            for j, op in enumerate(config.opacity_names()):
-                chain_path = None
-                if folder is not None:
-                    chain_path = folder / chain_file_name(op, primary=j == 0, partial=True)
-                # every law gets the same fresh seed, so a comparison is paired and order-free
-                fits[op], products[op] = fit_one(star, config, seed_for(config.seed, star.id), op, chain_path)
+            summary, products = fit_laws(star, config, folder)
         primary = config.opacity_names()[0]
-        summary = dict(fits[primary])
-        if len(fits) > 1:
-            summary["comparison"] = {op: {"parameters": f["parameters"], "derived": f["derived"],
-                                          "warnings": f["warnings"]} for op, f in fits.items()}
         status = "ok" if summary["sampler"]["converged"] else "not-converged"
         reason = "" if status == "ok" else summary["sampler"]["reason"]
         if folder is not None:
-            for j, op in enumerate(config.opacity_names()):
-                part = folder / chain_file_name(op, primary=j == 0, partial=True)
-                part.replace(folder / chain_file_name(op, primary=j == 0))
             if plots:
                 from radwalk.report.figures import write_star_plots
 

@@ -10,10 +10,10 @@ from __future__ import annotations
 import numpy as np
 
 from radwalk.errors import ConfigError
+from radwalk.forward.stages import StageSet
 from radwalk.host.components import Observations
 from radwalk.host.config import RunConfig
 from radwalk.host.params import Prior
-from radwalk.model.stages import StageSet
 
 
 class Posterior:

@@ -8,8 +8,8 @@ from dataclasses import dataclass
 import numpy as np
 
 from radwalk.errors import CatalogError
+from radwalk.forward.quantities import quantity
 from radwalk.host.components import OBSERVABLES, Observations
-from radwalk.model.quantities import quantity
 
 
 @dataclass(frozen=True)

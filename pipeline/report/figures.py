@@ -37,7 +37,7 @@ from matplotlib.patches import Patch  # noqa: E402
 from matplotlib.ticker import FuncFormatter, LogLocator, NullFormatter  # noqa: E402
 
 from radwalk import constants as k  # noqa: E402
-from radwalk.model.quantities import TIMESCALES, latex_label, latex_symbol, output_unit  # noqa: E402
+from radwalk.forward.quantities import TIMESCALES, latex_label, latex_symbol, output_unit  # noqa: E402
 from radwalk.results.files import atomic_path  # noqa: E402
 from radwalk.results.products import BAND_PERCENTILES, FitProducts  # noqa: E402
 
@@ -253,7 +253,7 @@ def timescale_columns(products: FitProducts):
     Returns
     -------
     names : list of str
-        Kept timescales (from ``radwalk.model.quantities.TIMESCALES``).
+        Kept timescales (from ``radwalk.forward.quantities.TIMESCALES``).
     data : ndarray, shape [N, len(names)]
         log10 of the timescales in their output units (yr, or s for the dynamical time).
     notes : list of str
@@ -270,7 +270,7 @@ def timescale_columns(products: FitProducts):
         bad = 1.0 - good.mean() if v.size else 1.0
         if bad > MAX_BAD_FRACTION:
             zero = float(np.mean(v == 0)) if v.size else 0.0
-            why = (" (no radiative layers in those models)" if name == "diffusion_time_radiative" and zero > 0
+            why = (" (no radiative zone in those models)" if name == "diffusion_time_radiative_core" and zero > 0
                    else "")
             notes.append(f"{sym} left out: zero or non-finite in {100 * bad:.0f} % of samples{why}")
             continue
@@ -292,7 +292,7 @@ def timescale_columns(products: FitProducts):
             value = f"{10 ** x[0]:.3g} {output_unit(name)}" if x.size else "n/a"
             notes.append(f"{sym} left out: constant ({value})")
             continue
-        if name == "diffusion_time_radiative" and "diffusion_time" in names:
+        if name == "diffusion_time_radiative_core" and "diffusion_time" in names:
             i = names.index("diffusion_time")
             if np.allclose(x, logs[:, i], rtol=0, atol=1e-9):
                 notes.append(f"{sym} left out: equal to " + latex_symbol("diffusion_time")

@@ -42,7 +42,7 @@ from markupsafe import Markup, escape
 
 from radwalk import __version__
 from radwalk.errors import ConfigError
-from radwalk.model.quantities import DERIVED_GROUPS, OBS_SHORT, PARAM_SYMBOL, PARAM_WORDS, UNIT_HTML, description
+from radwalk.forward.quantities import DERIVED_GROUPS, OBS_SHORT, PARAM_SYMBOL, PARAM_WORDS, UNIT_HTML, description
 from radwalk.results.document import PPC_POOR
 from radwalk.results.files import write_text
 from radwalk.results.layout import safe_folder_name
@@ -547,8 +547,9 @@ def _comparison(s: dict) -> dict | None:
         return None
     laws = list(comp)
     wanted = (("parameters", "mass", "mass M"), ("derived", "diffusion_time", "photon diffusion time"),
-              ("derived", "diffusion_time_radiative", "diffusion time, radiative layers"),
+              ("derived", "diffusion_time_radiative_core", "diffusion time, radiative zone"),
               ("derived", "kelvin_helmholtz_time", "Kelvin–Helmholtz time"),
+              ("derived", "energy_transport_time", "energy-transport (thermal) time"),
               ("derived", "central_temperature", "central temperature"),
               ("derived", "mean_free_path_center", "mean free path at the centre"))
     rows = []

@@ -26,6 +26,7 @@ class FitProducts:
     param_units: list
     priors: list
     samples: np.ndarray  # [N, ndim] thinned
+    derived_rows: np.ndarray  # [nderived] rows of ``samples`` the derived quantities were computed on
     derived: dict  # name -> [N] in output units
     r_rel: np.ndarray  # [g]
     bands: dict  # field -> [5, g]

@@ -13,7 +13,7 @@ from radwalk.cli.main import main
 JSON_KEYS = (
     "mass_msun radius_rsun luminosity_lsun teff_k mu central_density_g_cm3 central_temperature_k "
     "central_pressure_dyn_cm2 mean_free_path_center_cm photosphere_radius_rsun diffusion_time_yr "
-    "diffusion_time_radiative_yr diffusion_time_uniform_yr kelvin_helmholtz_time_yr dynamical_time_s "
+    "diffusion_time_radiative_core_yr diffusion_time_uniform_yr kelvin_helmholtz_time_yr dynamical_time_s "
     "eddington_luminosity_lsun convective_zones"
 ).split()
 

@@ -8,11 +8,11 @@ from pathlib import Path
 import pytest
 
 from radwalk.errors import ConfigError
+from radwalk.forward.stages import StageSet
 from radwalk.host import config, hookspecs
 from radwalk.host.contracts import CHECKS
 from radwalk.host.registry import Registry
 from radwalk.host.stages import BY_NAME, DEFAULTS, HOOKS, STAGE_TABLE, STAGES, stage, stage_of
-from radwalk.model.stages import StageSet
 
 ROOT = Path(__file__).resolve().parents[2]
 

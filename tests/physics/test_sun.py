@@ -6,8 +6,8 @@ import numpy as np
 import pytest
 
 from radwalk import constants as k
-from radwalk.model.forward import model_star
-from radwalk.model.stages import StageSet
+from radwalk.forward.one_star import model_star
+from radwalk.forward.stages import StageSet
 
 
 def sun(registry, opacity="combined", profile="polytrope", **settings):

@@ -112,7 +112,7 @@ def test_eddington_profile_is_self_consistent():
 
 
 def test_eddington_outside_mass_range_is_reported(registry):
-    from radwalk.model.stages import StageSet
+    from radwalk.forward.stages import StageSet
 
     stages = StageSet.build(registry, {"profile": "eddington-standard"})
     values = {"mass": np.array([0.2, 1.0]), "X": np.array([0.7, 0.7]), "Z": np.array([0.02, 0.02])}

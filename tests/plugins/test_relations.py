@@ -4,8 +4,8 @@ import numpy as np
 import pytest
 
 from radwalk import constants as k
+from radwalk.forward.stages import StageSet
 from radwalk.host.components import BoundOpacity
-from radwalk.model.stages import StageSet
 from radwalk.physics.composition import X_SUN, Z_SUN, mu
 from radwalk.plugins.relations import radiative_luminosity
 

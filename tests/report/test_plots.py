@@ -155,7 +155,7 @@ def test_timescale_columns_drop_bad_columns_with_a_note(products):
     derived["dynamical_time"] = np.full(n, 1500.0)  # constant
     rad = np.array(derived["diffusion_time"])
     rad[: n // 2] = 0.0  # half the models without radiative layers
-    derived["diffusion_time_radiative"] = rad
+    derived["diffusion_time_radiative_core"] = rad
     kh = np.array(derived["kelvin_helmholtz_time"])
     kh[3] = np.nan  # one broken sample: only that row goes
     derived["kelvin_helmholtz_time"] = kh
@@ -173,7 +173,7 @@ def test_timescale_columns_drop_bad_columns_with_a_note(products):
 def test_timescale_corner_with_one_or_no_column(tmp_path, products):
     n = len(products.derived["diffusion_time"])
     one = dict(products.derived, kelvin_helmholtz_time=np.zeros(n), dynamical_time=np.full(n, np.inf),
-               diffusion_time_radiative=np.full(n, np.nan))
+               diffusion_time_radiative_core=np.full(n, np.nan))
     fig = plots.corner_timescales_figure(dataclasses.replace(products, derived=one))
     assert len(fig.axes) == 1 and r"t_\mathrm{diff}" in fig.axes[0].get_xlabel()
     none = {k: v for k, v in one.items() if k != "diffusion_time"}

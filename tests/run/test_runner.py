@@ -68,7 +68,9 @@ def write_catalog(path, radius_unit=u.R_sun, lum_unit=u.L_sun, rows=None):
     rows = IDS if rows is None else rows
     base = {
         "sun like": (1.0, 0.04, 1.0, 0.05, 5772.0, 100.0),
-        "hot a/b": (1.8, 0.08, 12.0, 0.8, None, None),
+        # R 1.8 at L 12 was reachable by the homology relation until its opacity and pp + CNO rates were
+        # replaced (the zero-age models now stop near 1.36 R_sun at this luminosity): a zero-age radius now.
+        "hot a/b": (1.3, 0.08, 12.0, 0.8, None, None),
         "../x": (1.3, 0.06, 2.5, 0.15, 6500.0, 120.0),
         "cool <script>": (0.8, 0.04, 0.35, 0.03, 4900.0, 90.0),
         "broken": (1.1, -0.05, 1.2, 0.1, 6000.0, 100.0),  # a negative uncertainty: fails, others run

@@ -8,7 +8,10 @@ mass-radius-luminosity relation) go through :func:`solved_stars`, which
   asked about the same star in one evaluation solve it once;
 * solves the samples in order of mass and starts each from the nearest model
   already solved (homology scaling, DESIGN 5a), which is 3-5 times cheaper
-  than a polytrope start, falling back to the polytrope start when that fails.
+  than a polytrope start, falling back to the polytrope start when that fails;
+* when a polytrope start fails, reaches the star by continuation in mass from
+  a solar-mass star (:func:`_by_mass_continuation`) and, for an unusual opacity
+  law, by continuation from the built-in law (:func:`_by_opacity_continuation`).
 
 Ages above zero need main-sequence evolution, which is not built yet: they are
 refused with a clear error rather than answered with a zero-age star.
@@ -20,14 +23,18 @@ from collections import OrderedDict
 
 import numpy as np
 
+from radwalk import constants as k
 from radwalk.errors import ConfigError, ModelError
-from radwalk.physics.structure.solver import StarStructure, solve_star
+from radwalk.physics.opacity import default_kappa
+from radwalk.physics.structure.solver import StarStructure, solve_masses, solve_star
 
 __all__ = ["solved_stars", "opacity_key", "clear_memory"]
 
 _MEMORY: OrderedDict = OrderedDict()
 _MEMORY_SIZE = 256  # solved models kept (~100 kB each)
 _NEIGHBOUR_DEX = 0.15  # a solved model this close in log M (same X, Z, alpha, opacity) is a good start
+_SMALLEST_OPACITY_STEP = 1.0 / 64  # continuation in the opacity gives up below this step
+_REFERENCE_MASS = k.M_SUN  # the start of a continuation in mass, solved reliably from a polytrope
 
 
 def clear_memory():
@@ -108,10 +115,64 @@ def _solve_one(M, X, Z, kappa, alpha, key) -> StarStructure:
         except ModelError:
             star = None  # a poor neighbour: the polytrope start below is slower but sturdier
     if star is None:
-        star = solve_star(M, X, Z, kappa, alpha_mlt=alpha)
+        try:
+            star = solve_star(M, X, Z, kappa, alpha_mlt=alpha)
+        except ModelError as exc:
+            star = _by_mass_continuation(M, X, Z, kappa, alpha) or _by_opacity_continuation(M, X, Z, kappa, alpha, exc)
     _MEMORY[key] = star
     while len(_MEMORY) > _MEMORY_SIZE:
         _MEMORY.popitem(last=False)
+    return star
+
+
+def _by_mass_continuation(M, X, Z, kappa, alpha) -> StarStructure | None:
+    """The star reached from a solved star of the reference mass by steps in mass, or None.
+
+    Near the ends of the mass range a polytrope start can fail where a neighbour start does not
+    (DESIGN 5a: low masses at some compositions); the steps are geometric and halved on failure.
+    """
+    try:
+        start = solve_star(_REFERENCE_MASS, X, Z, kappa, alpha_mlt=alpha)
+        return solve_masses([M], X, Z, kappa, start=start, alpha_mlt=alpha)[0]
+    except ModelError:
+        return None
+
+
+def _by_opacity_continuation(M, X, Z, kappa, alpha, first_error) -> StarStructure:
+    """The star under ``kappa`` reached from the built-in law by continuation in the opacity.
+
+    A law far from real opacities somewhere in the star (a plugin's power law in the cool atmosphere, say)
+    can stop Newton's method from a polytrope start even where a solution exists.  The star is then
+    solved with the built-in law and followed along kappa_s = kappa_ref^(1 - s) kappa^s from s = 0 to 1,
+    halving a step that fails (the continuation method of numerical analysis; Kippenhahn, Weigert & Weiss
+    2012, ch. 12, use the same idea along a sequence of models).
+
+    Raises
+    ------
+    ModelError
+        The first error, with a note that the continuation did not get through either.
+    """
+
+    def mixed(s):
+        def kappa_s(rho, T, X_, Z_):
+            return np.exp((1.0 - s) * np.log(default_kappa(rho, T, X_, Z_)) + s * np.log(kappa(rho, T, X_, Z_)))
+        return kappa_s
+
+    try:
+        star = solve_star(M, X, Z, default_kappa, alpha_mlt=alpha)
+        s, step = 0.0, 0.25
+        while s < 1.0:
+            target = min(1.0, s + step)
+            try:
+                star = solve_star(M, X, Z, mixed(target) if target < 1.0 else kappa, alpha_mlt=alpha, guess=star)
+                s, step = target, min(2.0 * step, 0.5)
+            except ModelError:
+                step *= 0.5
+                if step < _SMALLEST_OPACITY_STEP:
+                    raise
+    except ModelError:
+        raise ModelError(f"{first_error}; continuation from the built-in opacity law did not reach it either") \
+            from None
     return star
 
 

@@ -129,7 +129,7 @@ class StageSet:
         """Predicted radius (cm), luminosity (erg/s) and T_eff (K) for per-sample values.
 
         Relations that declare ``gridded = True`` are interpolated on a
-        precomputed grid (see :mod:`radwalk.model.grid`) when their and
+        precomputed grid (see :mod:`radwalk.forward.grid`) when their and
         the opacity law's parameters are the same for every sample.
         """
         m_sun = np.atleast_1d(np.asarray(values["mass"], dtype=float))
@@ -163,7 +163,7 @@ class StageSet:
         key = tuple(sorted(fixed.items()))
         cache = self.__dict__.setdefault("_grids", {})
         if key not in cache:
-            from radwalk.model.grid import grid_for
+            from radwalk.forward.grid import grid_for
 
             okw = {p.name: fixed[p.name] for p in self.opacity.params}
             rkw = {p.name: fixed[p.name] for p in self.relation.params}

@@ -10,17 +10,32 @@ from astropy.table import Table
 
 from radwalk import constants as k
 from radwalk.errors import ConfigError, ModelError, ValidityWarning
-from radwalk.model.quantities import plain_unit, quantity
-from radwalk.model.stages import StageSet
+from radwalk.forward.quantities import plain_unit, quantity
+from radwalk.forward.stages import StageSet
 from radwalk.physics.composition import check_composition, mu
 
 # The quantities of the summary, in order; units and words from the quantity catalogue.
 SUMMARY_ROWS = (
-    "mass", "radius", "luminosity", "teff", "mu", "central_density", "central_temperature", "central_pressure",
-    "mean_free_path_center", "photosphere_radius", "diffusion_time", "diffusion_time_radiative",
-    "diffusion_time_uniform", "kelvin_helmholtz_time", "dynamical_time", "eddington_luminosity", "eddington_ratio",
+    "mass", "radius", "luminosity", "teff", "age", "mu", "central_density", "central_temperature",
+    "central_pressure", "mean_free_path_center", "photosphere_radius", "diffusion_time",
+    "diffusion_time_radiative_core", "diffusion_time_uniform", "convective_crossing_time", "energy_transport_time",
+    "kelvin_helmholtz_time", "dynamical_time", "eddington_luminosity", "eddington_ratio",
+    "convective_core_mass_fraction", "convective_envelope_base_radius", "convective_turnover_time",
+    "convective_turnover_time_global",
 )
-SUB_ROWS = ("diffusion_time_radiative", "diffusion_time_uniform")  # shown indented under the one before
+# shown indented under the one before
+SUB_ROWS = ("diffusion_time_radiative_core", "diffusion_time_uniform", "convective_turnover_time_global")
+
+
+# The components an age selects when no other profile or relation is named: only a solved star has a history.
+AGE_MODELS = {"profile": "solved", "relation": "solved"}
+
+
+def with_age(stages: dict, settings: dict, age: float) -> None:
+    """Adds an age (Gyr) to stage names and settings, choosing the solved models unless others are named."""
+    for stage, name in AGE_MODELS.items():
+        stages.setdefault(stage, name)
+    settings["age"] = age
 
 
 def summary_key(name: str) -> str:
@@ -72,25 +87,43 @@ def model_star(stages: StageSet, mass: float, X: float, Z: float, settings: dict
                 f"X = {X:g}, Z = {Z:g}; give --radius and --luminosity to model it anyway"
             )
         prof, tr = stages.structure(values, R, L)
+    if getattr(stages.profile, "sets_radius", False):
+        # A solved star: its radius and luminosity come out of the solution.
+        if radius is not None or luminosity is not None:
+            raise ConfigError(f"profile {stages.profile.name!r} solves for the radius and luminosity itself; "
+                              "--radius and --luminosity apply to the polytrope profiles")
+        R, L = prof.R, tr.fields["luminosity"][:, -1]
     notes = list(dict.fromkeys([str(w.message) for w in caught] + stages.validity_messages(values, prof)))
     r_rel = prof.r[0] / prof.R[0]
     teff = (L[0] / (4 * np.pi * R[0] ** 2 * k.SIGMA_SB)) ** 0.25
-    computed = {"mass": mass, "radius": R[0], "luminosity": L[0], "teff": teff, "mu": mu(X, Z),
+    age = float(np.atleast_1d(values["age"])[0]) if "age" in values else np.nan  # NaN: a model without an age
+    computed = {"mass": mass, "radius": R[0], "luminosity": L[0], "teff": teff, "mu": mu(X, Z), "age": age,
                 **{name: v[0] for name, v in tr.scalars.items()}}
-    rows = [(summary_key(n), float(quantity(n).to_output(computed[n]))) for n in SUMMARY_ROWS]
+    rows = [(summary_key(n), _json_number(quantity(n).to_output(computed[n]))) for n in SUMMARY_ROWS]
     summary = {
         **dict(rows[:4]),  # mass, radius, luminosity, teff; then the composition
         "X": float(X),
         "Z": float(Z),
         **dict(rows[4:]),
         "convective_zones": tr.zones(0, r_rel),
-        "radius_source": "given" if radius is not None else stages.relation.name,
-        "luminosity_source": "given" if luminosity is not None else stages.relation.name,
+        "radius_source": "given" if radius is not None else _source(stages),
+        "luminosity_source": "given" if luminosity is not None else _source(stages),
         "stages": {st: c.name for st, c in stages.components().items()},
         "parameters": {p.name: float(np.atleast_1d(values[p.name])[0]) for p in stages.component_params()},
         "warnings": notes,
     }
     return Interior(summary, profile_table(prof, tr, 0), notes)
+
+
+def _json_number(v) -> float | None:
+    """A float for the JSON summary; None (null) where the model has no value."""
+    v = float(v)
+    return v if np.isfinite(v) else None
+
+
+def _source(stages: StageSet) -> str:
+    """Which component set R and L: the relation, or a profile that solves for them."""
+    return stages.profile.name if getattr(stages.profile, "sets_radius", False) else stages.relation.name
 
 
 def profile_table(prof, tr, i: int) -> Table:
@@ -110,6 +143,10 @@ def profile_table(prof, tr, i: int) -> Table:
     t["luminosity"] = f["luminosity"][i] / k.L_SUN * u.Lsun
     t["nabla_rad"] = f["nabla_rad"][i]
     t["nabla_ad"] = f["nabla_ad"][i]
+    if "nabla" in f:
+        t["nabla"] = f["nabla"][i]
+    if "v_conv" in f:
+        t["v_conv"] = f["v_conv"][i] * u.cm / u.s
     t["zone"] = np.where(tr.convective[i], "convective", "radiative")
     t["diffusion_time_cumulative"] = f["diffusion_time_cumulative"][i] * u.yr
     t.meta["comments"] = [
@@ -133,7 +170,10 @@ def format_summary(summary: dict) -> str:
     for name in SUMMARY_ROWS:
         key, unit, label = summary_key(name), plain_unit(quantity(name).output_unit), labels[name]
         v = summary[key]
-        txt = f"{v:.4g}" if abs(v) < 1e5 or v == 0 else f"{v:.4e}"
+        if v is None:
+            txt = "n/a"  # e.g. no convective envelope, or a model without an age
+        else:
+            txt = f"{v:.4g}" if abs(v) < 1e5 or v == 0 else f"{v:.4e}"
         note = ""
         if key == "radius_rsun" and summary["radius_source"] == "given":
             note = "  (given)"

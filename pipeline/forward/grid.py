@@ -26,7 +26,7 @@ from pathlib import Path
 import numpy as np
 
 from radwalk import constants as k
-from radwalk.physics import energy, lane_emden
+from radwalk.physics import lane_emden, nuclear
 
 LOG_M = (np.log10(0.05), np.log10(150.0), 0.03)  # start, stop, step (dex)
 X_AXIS = (0.40, 0.85, 0.05)
@@ -138,7 +138,7 @@ def grid_for(relation, opacity_law, opacity_kwargs: dict, rel_kwargs: dict, boun
         "options": _options_digest(options or {}),
         "axes": [LOG_M, X_AXIS, LOG_Z],
         "source": _source_digest(relation, opacity_law),
-        "host": _source_digest(energy, lane_emden, inspect.getmodule(RelationGrid)),
+        "host": _source_digest(nuclear, lane_emden, inspect.getmodule(RelationGrid)),
     }
     key = hashlib.sha256(json.dumps(key_data, sort_keys=True).encode()).hexdigest()[:24]
     if key in _MEMORY:

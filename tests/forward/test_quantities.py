@@ -5,10 +5,10 @@ import numpy as np
 import pytest
 from matplotlib.mathtext import MathTextParser
 
+from radwalk.forward import quantities as q
+from radwalk.forward.one_star import SUMMARY_ROWS, model_star, summary_key
 from radwalk.host.config import RunConfig
 from radwalk.inference.fit import stages_for
-from radwalk.model import quantities as q
-from radwalk.model.forward import SUMMARY_ROWS, model_star, summary_key
 from radwalk.results.document import OBSERVED_UNITS
 
 # astropy spells the solar units its own way; the catalogue keeps the spelling users read
@@ -85,13 +85,16 @@ def test_plain_units():
 
 
 def test_model_summary_keys_are_the_documented_ones():
-    # the keys `radwalk model --json` has always written (README, tests/cli/test_cli_model.py)
+    # the keys `radwalk model --json` writes (README, tests/cli/test_cli_model.py); the radiative-layers-only
+    # diffusion time gave way to the radiative-zone one and the convection keys when the solved star came
     assert [summary_key(n) for n in SUMMARY_ROWS] == [
-        "mass_msun", "radius_rsun", "luminosity_lsun", "teff_k", "mu", "central_density_g_cm3",
+        "mass_msun", "radius_rsun", "luminosity_lsun", "teff_k", "age_gyr", "mu", "central_density_g_cm3",
         "central_temperature_k", "central_pressure_dyn_cm2", "mean_free_path_center_cm", "photosphere_radius_rsun",
-        "diffusion_time_yr", "diffusion_time_radiative_yr", "diffusion_time_uniform_yr", "kelvin_helmholtz_time_yr",
-        "dynamical_time_s", "eddington_luminosity_lsun", "eddington_ratio"]
+        "diffusion_time_yr", "diffusion_time_radiative_core_yr", "diffusion_time_uniform_yr",
+        "convective_crossing_time_yr", "energy_transport_time_yr", "kelvin_helmholtz_time_yr",
+        "dynamical_time_s", "eddington_luminosity_lsun", "eddington_ratio", "convective_core_mass_fraction",
+        "convective_envelope_base_radius", "convective_turnover_time_d", "convective_turnover_time_global_d"]
     stages = stages_for(RunConfig())
     summary = model_star(stages, 1.0, 0.70, 0.02, radius=1.0, luminosity=1.0).summary
-    assert list(summary)[:7] == ["mass_msun", "radius_rsun", "luminosity_lsun", "teff_k", "X", "Z", "mu"]
+    assert list(summary)[:8] == ["mass_msun", "radius_rsun", "luminosity_lsun", "teff_k", "X", "Z", "age_gyr", "mu"]
     assert summary["radius_rsun"] == 1.0 and summary["luminosity_lsun"] == 1.0

@@ -85,11 +85,20 @@ CATALOGUE: dict[str, Quantity] = {q.name: q for q in (
     _q("X", "", "hydrogen mass fraction", "hydrogen mass fraction", r"$X$", PARAMETERS, plain="X"),
     _q("Z", "", "metal mass fraction", "metal mass fraction", r"$Z$", PARAMETERS, plain="Z"),
     _q("n", "", "polytropic index", "polytropic index", r"$n$", PARAMETERS, plain="n"),
+    _q("alpha_mlt", "", "mixing-length parameter", "mixing-length parameter", r"$\alpha_\mathrm{MLT}$", PARAMETERS,
+       plain="alpha"),
+    _q("age", "Gyr", "age since the zero-age main sequence", "age", r"$t$", PARAMETERS, plain="t"),
 
     _q("diffusion_time", "yr", "photon diffusion time, centre to surface", "photon diffusion time",
        r"$t_\mathrm{diff}$", TIMESCALES_GROUP),
-    _q("diffusion_time_radiative", "yr", "photon diffusion time through radiative layers only",
-       "through radiative layers only", r"$t_\mathrm{diff,rad}$", TIMESCALES_GROUP),
+    _q("diffusion_time_radiative_core", "yr",
+       "photon diffusion time through the radiative zone alone (centre or convective-core edge to the "
+       "convective-envelope base)", "through the radiative zone alone", r"$t_\mathrm{diff,rad}$", TIMESCALES_GROUP),
+    _q("convective_crossing_time", "yr", "time convective eddies take to cross the convective layers "
+       "(integral of dr/v, mixing-length velocities)", "convective crossing time", r"$t_\mathrm{conv}$",
+       TIMESCALES_GROUP),
+    _q("energy_transport_time", "yr", "energy-transport (thermal) time U/L: the heat content over the luminosity",
+       "energy-transport (thermal) time U/L", r"$t_\mathrm{th}$", TIMESCALES_GROUP),
     _q("diffusion_time_uniform", "yr", "uniform-density estimate R^2 kappa rho / c", "uniform-density estimate",
        r"$t_\mathrm{diff,uni}$", TIMESCALES_GROUP),
     _q("kelvin_helmholtz_time", "yr", "Kelvin-Helmholtz time |Omega|/(2L)", "Kelvin-Helmholtz time",
@@ -118,14 +127,23 @@ CATALOGUE: dict[str, Quantity] = {q.name: q for q in (
 
     _q("core_convective_radius", "", "outer edge of a convective core in r/R (0: none)", "convective core edge",
        r"$r_\mathrm{cc}/R$", CONVECTION),
-    _q("envelope_convective_radius", "", "inner edge of a convective envelope in r/R (1: none)",
-       "convective envelope edge", r"$r_\mathrm{ce}/R$", CONVECTION),
+    _q("convective_envelope_base_radius", "", "base of the convective envelope in r/R (1: none)",
+       "convective envelope base", r"$r_\mathrm{ce}/R$", CONVECTION),
     _q("convective_mass_fraction", "", "fraction of the mass in convective layers", "convective mass fraction",
        r"$M_\mathrm{conv}/M$", CONVECTION),
+    _q("convective_core_mass_fraction", "", "mass of the convective core over M (0: none)",
+       "convective core mass fraction", r"$M_\mathrm{cc}/M$", CONVECTION),
+    _q("convective_turnover_time", "d", "local convective turnover time, mixing length over velocity half a "
+       "pressure scale height above the envelope base", "convective turnover time (local)", r"$\tau_c$",
+       CONVECTION),
+    _q("convective_turnover_time_global", "d", "global convective turnover time, integral of dr/v over the "
+       "convective envelope", "convective turnover time (global)", r"$\tau_{c,g}$", CONVECTION),
 )}
 
 # The timescales of the per-star corner plot (the uniform-density estimate is a cross-check, not drawn).
-TIMESCALES = ("diffusion_time", "diffusion_time_radiative", "kelvin_helmholtz_time", "dynamical_time")
+# The energy-transport time is in the tables, not here: for most models it is within a few per cent of the
+# Kelvin-Helmholtz time (both measure the heat content over L), and a second, nearly equal axis says nothing.
+TIMESCALES = ("diffusion_time", "diffusion_time_radiative_core", "kelvin_helmholtz_time", "dynamical_time")
 
 # Units as HTML, for the report; other units are shown as written.
 UNIT_HTML = {

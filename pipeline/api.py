@@ -1,0 +1,259 @@
+"""The Python API for notebooks: :func:`fit` one star, :func:`model` one star of given mass.
+
+Both take plain numbers in solar units and kelvin, or astropy Quantities in
+any compatible unit, and raise :class:`radwalk.errors.RadwalkError` (with the
+same one-line messages as the command line) for bad input::
+
+    import radwalk
+    res = radwalk.fit(radius=(1.02, 0.02), luminosity=(1.05, 0.05), teff=(5800, 60), seed=1)
+    res.summary["parameters"]["mass"]["p50"]        # the same content as summary.json
+    res.samples["mass"], res.samples["diffusion_time"]   # QTable columns with units
+    res.write("my-star")                            # summary.json, chain.h5 and the plots
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+import numpy as np
+
+__all__ = ["fit", "model", "FitResult", "ModelResult"]
+
+_USER_UNITS = {"radius": "R_sun", "luminosity": "L_sun", "teff": "K", "feh": ""}
+
+
+def _number(name: str, value) -> float:
+    """A float in radwalk's user unit from a number or an astropy Quantity."""
+    import astropy.units as u
+
+    from radwalk.errors import ConfigError
+
+    if isinstance(value, u.Quantity):
+        unit = _USER_UNITS[name]
+        try:
+            target = u.Unit(unit.replace("_sun", "sun")) if unit else u.dimensionless_unscaled
+            return float(value.to_value(target))
+        except u.UnitConversionError:
+            raise ConfigError(f"{name} in {value.unit} cannot be converted to {unit or 'a pure number'}") from None
+    try:
+        return float(value)
+    except (TypeError, ValueError):
+        raise ConfigError(f"{name} must be a number or an astropy Quantity, got {value!r}") from None
+
+
+def _pair(name: str, pair) -> tuple[float, float] | tuple[None, None]:
+    """(value, error) in user units; None means not measured."""
+    from radwalk.errors import ConfigError
+
+    if pair is None:
+        return None, None
+    try:
+        value, err = pair
+    except (TypeError, ValueError):
+        raise ConfigError(f"{name} must be a pair (value, error), got {pair!r}") from None
+    return _number(name, value), _number(name, err)
+
+
+def _config(config, seed, opacity):
+    """A RunConfig from None, a TOML path, a dict or a RunConfig, with seed and opacity laid over it."""
+    from radwalk.errors import ConfigError
+    from radwalk.host import config as config_mod
+
+    if config is None:
+        cfg = config_mod.RunConfig()
+    elif isinstance(config, config_mod.RunConfig):
+        cfg = config
+    elif isinstance(config, dict):
+        cfg = config_mod.from_dict(config)
+    elif isinstance(config, (str, Path)):
+        cfg = config_mod.load(config)
+    else:
+        raise ConfigError(f"config must be None, a TOML path, a dict or a RunConfig, got {type(config).__name__}")
+    changes = {}
+    if seed is not None:
+        if int(seed) != seed or seed < 0:
+            raise ConfigError(f"seed must be a non-negative integer, got {seed!r}")
+        changes["seed"] = int(seed)
+    if opacity is not None:
+        names = (opacity,) if isinstance(opacity, str) else tuple(opacity)
+        changes["stages"] = {**cfg.stages, "opacity": names[0] if len(names) == 1 else names}
+    return cfg.with_changes(**changes) if changes else cfg
+
+
+@dataclass
+class FitResult:
+    """One star's posterior.
+
+    Attributes
+    ----------
+    summary : dict
+        The same document a fit writes as summary.json (strict JSON content).
+    samples : astropy.table.QTable
+        The thinned posterior samples on which the derived quantities were
+        computed: every sampled parameter (and those drawn from their priors)
+        and every derived quantity, with units.  [nsamples] rows.
+    chain : radwalk.inference.sampler.Chain
+        The full chain: ``chain.chain`` [steps, walkers, ndim], ``log_prob``, ``tau``, ``burn``, ``thin``.
+    """
+
+    summary: dict
+    samples: object
+    chain: object
+    _products: object
+    _config: object
+
+    def write(self, folder) -> Path:
+        """Writes summary.json, chain.h5 and the star's plots into ``folder`` (created); returns the folder."""
+        from radwalk.report.figures import write_star_plots
+        from radwalk.results.chain import ChainFile
+        from radwalk.results.files import write_json
+        from radwalk.results.layout import STAR_SUMMARY, chain_file_name
+
+        folder = Path(folder)
+        folder.mkdir(parents=True, exist_ok=True)
+        c = self.chain
+        store = ChainFile(folder / chain_file_name(self._products.opacity, primary=True), c.names,
+                          c.chain.shape[1])
+        store.append(c.chain, c.log_prob, steps=c.steps, tau=c.tau, converged=bool(c.converged))
+        doc = dict(self.summary)
+        doc["plots"] = write_star_plots(self._products, folder)
+        write_json(folder / STAR_SUMMARY, doc)
+        return folder
+
+
+def _samples_table(products):
+    import astropy.units as u
+    from astropy.table import QTable
+
+    from radwalk.forward.quantities import CATALOGUE, output_unit
+
+    def unit_of(text):
+        text = (text or "").replace("_sun", "sun")
+        return u.Unit(text) if text else u.dimensionless_unscaled
+
+    rows = products.derived_rows
+    t = QTable()
+    for j, name in enumerate(products.param_names):
+        t[name] = products.samples[rows, j] * unit_of(products.param_units[j])
+    for name, values in products.derived.items():
+        unit = CATALOGUE[name].output_unit if name in CATALOGUE else output_unit(name)
+        t[name] = np.asarray(values, dtype=float) * unit_of(unit)
+    return t
+
+
+def fit(radius=None, luminosity=None, teff=None, feh=None, *, id="star", config=None, seed=None,
+        opacity=None) -> FitResult:
+    """Samples one star's posterior and derives its interior and timescales.
+
+    Parameters
+    ----------
+    radius, luminosity, teff : (value, error), optional
+        R in R_sun, L in L_sun, T_eff in K, as numbers or astropy Quantities; at least two.
+    feh : (value, error), optional
+        [Fe/H] in dex, a prior on Z.
+    id : str
+        The star's name (in the summary and the plots).
+    config : None, str or Path, dict, or RunConfig
+        A run configuration (the TOML file `radwalk fit --config` takes, its content as a dict, or an object).
+    seed : int, optional
+        Replaces the configuration's seed.
+    opacity : str or list of str, optional
+        Opacity law; several are fitted and compared, the first is primary.
+
+    Returns
+    -------
+    FitResult
+
+    Raises
+    ------
+    radwalk.errors.RadwalkError
+        Bad input, an unknown component, or a star no model reaches.
+    """
+    import warnings
+
+    from radwalk.errors import ValidityWarning
+    from radwalk.inference.fit import StarResult, fit_laws
+    from radwalk.inference.star import Star
+    from radwalk.results.document import result_document
+    from radwalk.results.files import strict
+
+    cfg = _config(config, seed, opacity)
+    values = {}
+    for name, pair in (("radius", radius), ("luminosity", luminosity), ("teff", teff)):
+        values[name], values[f"{name}_err"] = _pair(name, pair)
+    feh_value, feh_err = _pair("feh", feh)
+    star = Star.from_user_units(str(id), **values, feh=feh_value, feh_err=feh_err)
+    with warnings.catch_warnings():
+        warnings.simplefilter("ignore", ValidityWarning)  # they are in summary["warnings"]
+        summary, products = fit_laws(star, cfg)
+    status = "ok" if summary["sampler"]["converged"] else "not-converged"
+    reason = "" if status == "ok" else summary["sampler"]["reason"]
+    doc = strict(result_document(star, cfg, StarResult(star.id, status, reason, summary)))  # as summary.json
+    primary = products[cfg.opacity_names()[0]]
+    return FitResult(summary=doc, samples=_samples_table(primary), chain=primary.chain, _products=primary,
+                     _config=cfg)
+
+
+@dataclass
+class ModelResult:
+    """The forward model of one star.
+
+    Attributes
+    ----------
+    summary : dict
+        The same object ``radwalk model --json`` prints.
+    profile : astropy.table.QTable
+        The radial profile, centre first, with units.
+    warnings : list of str
+        Validity notes (a law used outside its range).
+    """
+
+    summary: dict
+    profile: object
+    warnings: list
+
+
+def model(mass, X=None, Z=None, *, age=None, profile=None, opacity=None, relation=None, settings=None,
+          plugins=()) -> ModelResult:
+    """Interior and timescales of one star of given mass and composition.
+
+    Parameters
+    ----------
+    mass : float or Quantity, M_sun
+    X, Z : float, optional
+        Hydrogen and metal mass fractions (default: solar, Asplund et al. 2009).
+    age : float or Quantity, Gyr, optional
+        Selects the solved star (profile and relation ``solved``) unless others are named; 0 is zero-age.
+    profile, opacity, relation : str, optional
+        Component names (default: the stage table's defaults).
+    settings : dict, optional
+        Component parameters and options by name, e.g. ``{"n": 1.5}``.
+    plugins : sequence of str
+        Plugin files to load.
+
+    Returns
+    -------
+    ModelResult
+    """
+    import astropy.units as u
+    from astropy.table import QTable
+
+    from radwalk.constants import X_SUN, Z_SUN
+    from radwalk.forward.one_star import model_star, with_age
+    from radwalk.host.config import RunConfig
+    from radwalk.inference.fit import stages_for
+
+    if isinstance(mass, u.Quantity):
+        mass = mass.to_value(u.Msun)
+    stages = {k: v for k, v in (("profile", profile), ("opacity", opacity), ("relation", relation)) if v}
+    settings = dict(settings or {})
+    if age is not None:
+        with_age(stages, settings, float(age.to_value(u.Gyr) if isinstance(age, u.Quantity) else age))
+    plugin_paths = tuple(str(Path(p).expanduser().resolve()) for p in plugins)
+    built = stages_for(RunConfig(stages=stages, settings=settings, plugins=plugin_paths))
+    params = {k: v for k, v in settings.items() if k not in built.option_names()}
+    interior = model_star(built, float(mass), X_SUN if X is None else float(X), Z_SUN if Z is None else float(Z),
+                          params)
+    return ModelResult(summary=interior.summary, profile=QTable(interior.profile_table),
+                       warnings=interior.warnings)

@@ -1,0 +1,89 @@
+"""The notebook API: radwalk.fit and radwalk.model give what the command line gives."""
+
+import json
+
+import astropy.units as u
+import numpy as np
+import pytest
+
+import radwalk
+from radwalk.cli.main import main
+from radwalk.errors import RadwalkError
+
+FAST = {"sampler": {"walkers": 16, "chunk": 200, "max_steps": 1200, "derived_samples": 150, "optimizer_starts": 2}}
+STAR = {"radius": (1.02, 0.02), "luminosity": (1.05, 0.05), "teff": (5800.0, 60.0)}
+
+
+def _refuse(name):
+    raise ValueError(f"not strict JSON: {name}")
+
+
+@pytest.fixture(scope="module")
+def result():
+    return radwalk.fit(**STAR, id="api star", config=FAST, seed=4)
+
+
+def test_fit_summary_is_the_summary_json_of_the_command_line(result, tmp_path, capsys):
+    toml = tmp_path / "fast.toml"
+    toml.write_text("[sampler]\n" + "\n".join(f"{k} = {v}" for k, v in FAST["sampler"].items()) + "\n")
+    code = main(["fit", "--id", "api star", "--radius", "1.02", "0.02", "--luminosity", "1.05", "0.05", "--teff",
+                 "5800", "60", "--config", str(toml), "--seed", "4", "--out", str(tmp_path / "cli"), "--no-plots"])
+    capsys.readouterr()
+    assert code == 0
+    cli = json.loads((tmp_path / "cli" / "summary.json").read_text(), parse_constant=_refuse)
+    api = json.loads(json.dumps(result.summary, allow_nan=False), parse_constant=_refuse)  # strict JSON content
+    for key in ("id", "status", "parameters", "derived", "observed"):
+        assert api[key] == cli[key], key
+
+
+def test_samples_are_a_qtable_of_every_parameter_and_derived_quantity_with_units(result):
+    t = result.samples
+    names = set(result.summary["parameters"]) | set(result.summary["derived"])
+    assert names <= set(t.colnames)
+    assert t["mass"].unit == u.Msun and t["diffusion_time"].unit == u.yr
+    assert t["central_density"].unit == u.g / u.cm**3
+    assert len(t) == result.summary["sampler"]["derived_samples"]
+    # the table's medians are the summary's
+    assert np.median(t["mass"].value) == pytest.approx(result.summary["parameters"]["mass"]["p50"], rel=0.05)
+    assert np.median(t["diffusion_time"].value) == pytest.approx(result.summary["derived"]["diffusion_time"]["p50"])
+    assert result.chain.chain.ndim == 3
+
+
+def test_quantities_in_other_units_give_the_same_fit(result):
+    km, watt = u.km, u.W
+    r_sun, l_sun = (1 * u.Rsun).to_value(km), (1 * u.Lsun).to_value(watt)
+    again = radwalk.fit(radius=(1.02 * r_sun * km, 0.02 * r_sun * km), luminosity=(1.05 * l_sun * watt,
+                        0.05 * l_sun * watt), teff=(5800 * u.K, 60 * u.K), id="api star", config=FAST, seed=4)
+    assert again.summary["parameters"]["mass"]["p50"] == pytest.approx(
+        result.summary["parameters"]["mass"]["p50"], rel=1e-9)
+
+
+def test_write_puts_the_run_folder_files_in_place(result, tmp_path):
+    folder = result.write(tmp_path / "star")
+    doc = json.loads((folder / "summary.json").read_text(), parse_constant=_refuse)
+    assert doc["id"] == "api star" and set(doc["plots"])
+    assert (folder / "chain.h5").stat().st_size > 1000
+    assert (folder / "corner_parameters.png").stat().st_size > 1000
+
+
+def test_model_equals_radwalk_model_json(capsys):
+    star = radwalk.model(mass=1.0, X=0.70, Z=0.02, age=0)
+    assert main(["model", "--mass", "1", "--X", "0.70", "--Z", "0.02", "--age", "0", "--json"]) == 0
+    cli = json.loads(capsys.readouterr().out, parse_constant=_refuse)
+    assert star.summary == cli
+    assert star.profile["T"].unit == u.K and len(star.profile) > 100
+    quick = radwalk.model(mass=2 * u.Msun, settings={"n": 1.5})
+    assert quick.summary["stages"]["profile"] == "polytrope" and quick.summary["parameters"]["n"] == 1.5
+
+
+@pytest.mark.parametrize("kwargs,needle", [
+    ({"radius": (1.0, 0.0)}, "uncertainty of R = 0 R_sun is not allowed"),
+    ({"radius": 1.0}, "radius must be a pair"),
+    ({"radius": (1.0 * u.kg, 0.1 * u.kg)}, "cannot be converted"),
+    ({"radius": (1.0, 0.1), "opacity": "kramerz"}, "did you mean 'kramers'"),
+    ({"radius": (1.0, 0.1), "config": 5}, "config must be"),
+])
+def test_bad_input_raises_one_clear_error(kwargs, needle):
+    with pytest.raises(RadwalkError) as info:
+        radwalk.fit(**{"config": FAST, **kwargs})
+    assert needle in str(info.value)
