@@ -150,6 +150,7 @@ def test_libraries_stay_in_their_room(library):
     assert not bad, f"{library} imported outside its room by {bad}"
 
 
+@pytest.mark.subprocess
 def test_help_and_version_import_no_heavy_library():
     heavy = ("emcee", "matplotlib", "corner", "h5py", "distributed")
     code = ("import sys, contextlib, io\n"

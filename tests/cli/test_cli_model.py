@@ -183,6 +183,7 @@ def test_plugins_lists_every_stage_with_params(capsys):
     assert "polytrope" in out and "built-in" in out
 
 
+@pytest.mark.subprocess
 def test_console_script_runs():
     r = subprocess.run([sys.executable, "-m", "radwalk.cli.main", "model", "--mass", "1", "--opacity", "x"],
                        capture_output=True, text=True)

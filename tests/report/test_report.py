@@ -430,6 +430,7 @@ def crawl(run: Path, tmp_path: Path, scripts: bool = True) -> list[dict]:
 
 
 @NEEDS_CHROMIUM
+@pytest.mark.browser
 def test_pages_load_in_chromium_with_escaped_ids(run_dir, tmp_path):
     for star_id in ("Alpha one", SCRIPT_ID):
         dom = chromium(tmp_path, "--dump-dom", page_of(run_dir, star_id).resolve().as_uri()).stdout
@@ -446,6 +447,7 @@ def test_pages_load_in_chromium_with_escaped_ids(run_dir, tmp_path):
 
 
 @NEEDS_CHROMIUM
+@pytest.mark.browser
 def test_every_page_image_and_link_works_in_chromium(run_dir, tmp_path):
     pages = crawl(run_dir, tmp_path)
     expected = {(run_dir / "report" / "index.html").resolve().as_uri()}
@@ -465,6 +467,7 @@ def test_every_page_image_and_link_works_in_chromium(run_dir, tmp_path):
 
 
 @NEEDS_CHROMIUM
+@pytest.mark.browser
 def test_chromium_check_catches_a_missing_image(run_dir, tmp_path):
     run = tmp_path / "run"
     shutil.copytree(run_dir, run)
@@ -476,6 +479,7 @@ def test_chromium_check_catches_a_missing_image(run_dir, tmp_path):
 
 
 @NEEDS_CHROMIUM
+@pytest.mark.browser
 def test_report_works_without_javascript(run_dir, tmp_path):
     pages = crawl(run_dir, tmp_path, scripts=False)
     assert len(pages) == 1 + len(STARS)

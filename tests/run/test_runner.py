@@ -193,6 +193,7 @@ def test_two_workers_give_the_same_summary(base, tmp_path):
     same_summary(base["ref"] / "summary.ecsv", tmp_path / "two" / "summary.ecsv")
 
 
+@pytest.mark.dask
 def test_dask_local_cluster_gives_the_same_summary(base, tmp_path):
     o = run_catalog(base["catalog"], tmp_path / "dask", base["config"], executor="dask", workers=2,
                     report=False, plots=False, quiet=True)
@@ -200,6 +201,7 @@ def test_dask_local_cluster_gives_the_same_summary(base, tmp_path):
     same_summary(base["ref"] / "summary.ecsv", tmp_path / "dask" / "summary.ecsv")
 
 
+@pytest.mark.dask
 def test_local_cluster_listens_on_loopback_only():
     psutil = pytest.importorskip("psutil")
     from distributed import Client
@@ -217,6 +219,7 @@ def test_local_cluster_listens_on_loopback_only():
     assert {a.ip for a in listening} == {"127.0.0.1"}
 
 
+@pytest.mark.dask
 def test_unanswering_scheduler_fails_fast_and_writes_nothing(base, tmp_path):
     out = tmp_path / "out"
     t0 = time.perf_counter()
@@ -238,6 +241,7 @@ def test_resume_skips_finished_stars(base, tmp_path):
 
 
 @pytest.mark.parametrize("how", ["sigkill", "ctrl-c"])
+@pytest.mark.subprocess
 def test_interrupted_part_way_then_resumed_gives_the_same_summary(base, tmp_path, how):
     # sigkill: the run's own process is killed (as by the OOM killer), its workers must die with it;
     # ctrl-c: SIGINT to the whole process group, as a terminal sends it.
@@ -348,6 +352,7 @@ def plugin_config(base, tmp_path):
     return base["config"].with_changes(plugins=(str(path),), stages=stages), path
 
 
+@pytest.mark.dask
 def test_plugin_opacity_is_used_on_dask_workers(base, plugin_config, tmp_path):
     config, path = plugin_config
     cat = write_catalog(tmp_path / "one.ecsv", rows=["sun like"])
@@ -365,6 +370,7 @@ def test_plugin_opacity_is_used_on_dask_workers(base, plugin_config, tmp_path):
     assert Table.read(out / "summary.ecsv")["kelvin_helmholtz_time_p50"][0] != ref["kelvin_helmholtz_time_p50"][0]
 
 
+@pytest.mark.dask
 def test_plugin_reaches_a_worker_that_cannot_see_the_file(base, plugin_config, tmp_path):
     # As on a remote cluster: the workers get the uploaded copy once the original path is gone.
 
