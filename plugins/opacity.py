@@ -1,33 +1,9 @@
 """Built-in opacity components: electron scattering, Kramers, H-minus and the default (combined) law.
 
-Thin adapters: the physics is in :mod:`radwalk.physics.opacity`.
-
-Every law returns a Rosseland-mean opacity in cm^2/g and broadcasts over all
-of its inputs: the host passes rho and T of shape ``[n, ngrid]`` with X, Z and
-the law's parameters of shape ``[n, 1]``, or everything ``[n]``, or scalars.
-
-The three textbook laws use the coefficients of Carroll & Ostlie (1996,
-*An Introduction to Modern Astrophysics*, eqs. 9.22, 9.23 and 9.28), which
-are written in SI units; converted to cgs (m^2/kg -> cm^2/g is x10, rho in
-kg/m^3 is 1e3 rho in g/cm^3) they read
-
-    bound-free  4.34e25 (g_bf / t) Z (1 + X) rho T^-3.5
-    free-free   3.68e22 g_ff (1 - Z) (1 + X) rho T^-3.5
-    H-minus     2.5e-31 (Z / 0.02) rho^(1/2) T^9
-
-The default law (``combined``) is built from the microphysics instead: Saha
-ionisation of H, He and the metals with pressure ionisation; electron
-scattering on the free electrons; hydrogenic bound-free + free-free absorption
-of H and He, Rosseland-averaged over the level populations; H-minus from its
-own Saha equation; Rayleigh scattering by neutral hydrogen; and a metal term
-of Kramers' form calibrated to standard-solar-model opacities (see
-:class:`Combined`).  Its Rosseland averages are computed once, on first use
-(~0.05 s), and kept as a cubic spline in ln T.
-
-Surface points may carry rho = 0 or T = 0: the textbook laws clip densities at
-0 and temperatures at 1 K, which only keeps 0 * inf out of the arithmetic; the
-default law evaluates rho below 1e-30 g/cm^3 at 1e-30 and T outside
-300 K - 3e9 K at those bounds.
+Thin adapters: the formulas, their sources and the default law's microphysics are in
+:mod:`radwalk.physics.opacity`.  Every law returns a Rosseland-mean opacity in cm^2/g and broadcasts over
+all of its inputs: the host passes rho and T of shape ``[n, ngrid]`` with X, Z and the law's parameters of
+shape ``[n, 1]``, or everything ``[n]``, or scalars.
 """
 
 from __future__ import annotations

@@ -7,11 +7,13 @@ mixing-length convection and an Eddington grey atmosphere (see
 docs/physics.md).  The opacity is the opacity stage, so any law — built-in,
 tabulated or a user's plugin — shapes the solved star.
 
-Both components solve zero-age main-sequence stars (``age`` = 0 Gyr); other
-ages need main-sequence evolution, which is not built yet and is refused with
-a clear error.  A solved star is slow next to a polytrope (0.05-0.3 s of CPU
-each), so the fits keep the gridded homology relation as their default until
-a shipped model grid makes the solved relation fast enough to sample.
+Both components solve main-sequence stars at an ``age`` in Gyr: 0 is the
+zero-age main sequence; an older star is evolved along its track (burning
+X(m), mixing convective cores) and an age past central hydrogen exhaustion is
+refused with a clear error.  A solved star is slow next to a polytrope
+(0.1-0.7 s of CPU zero-age, 2-6 s for a track), so the fits keep the gridded
+homology relation as their default until a shipped model grid makes the
+solved star fast enough to sample.
 """
 
 from __future__ import annotations
@@ -31,7 +33,7 @@ _VALIDITY = Validity(
     mass=MASS_RANGE,
     X=X_RANGE,
     Z=Z_RANGE,
-    note="zero-age main-sequence stars solved from the structure equations; the solver refuses masses, "
+    note="main-sequence stars solved from the structure equations; the solver refuses masses, "
     "compositions and mixing lengths outside the ranges its tests cover, and the analytic opacity law is "
     "its main error (see docs/physics.md)",
 )
@@ -43,7 +45,7 @@ def _params():
               description="mixing-length parameter (mixing length over pressure scale height)",
               prior=Prior("uniform", 1.2, 2.4), sampled=False, latex=r"$\alpha_\mathrm{MLT}$"),
         Param(name="age", unit="Gyr", lower=0.0, upper=15.0, default=0.0,
-              description="age since the zero-age main sequence (only 0 until evolution is built)",
+              description="age since the zero-age main sequence",
               prior=Prior("uniform", 0.0, 15.0), sampled=False, latex=r"$t$"),
     )
 
@@ -108,7 +110,7 @@ class SolvedProfile:
             r=stack("r"), m=stack("m"), rho=stack("rho"), P=P, T=T, beta=beta,
             M=M.copy(), R=np.array([s.R for s in stars]), X=np.array(X, dtype=float), Z=np.array(Z, dtype=float),
             L=stack("L"), nabla=stack("nabla"), convective=stack("convective"), v_conv=stack("v_conv"),
-            u=stack("u"), scalars=scalars,
+            u=stack("u"), X_profile=stack("X"), scalars=scalars,
         )
 
 
@@ -116,8 +118,8 @@ class SolvedRelation:
     """Radius and luminosity of the solved zero-age main-sequence star."""
 
     name = "solved"
-    description = ("R and L of the star solved from the structure equations with the chosen opacity law "
-                   "(zero-age main sequence)")
+    description = ("R and L of the main-sequence star solved from the structure equations with the chosen "
+                   "opacity law, at its age")
     params = _params()
     validity = _VALIDITY
 

@@ -12,7 +12,7 @@ components, their settings and the source code they run.
 
 Points outside the grid, or runs in which a relation or opacity parameter is
 sampled, fall back to the direct solution.  The interpolation error is
-tested against the direct solution (tests/test_relation_grid.py).
+tested against the direct solution (tests/plugins/test_relations.py).
 """
 
 from __future__ import annotations

@@ -17,7 +17,7 @@ from radwalk.physics.composition import check_composition, mu
 # The quantities of the summary, in order; units and words from the quantity catalogue.
 SUMMARY_ROWS = (
     "mass", "radius", "luminosity", "teff", "age", "mu", "central_density", "central_temperature",
-    "central_pressure", "mean_free_path_center", "photosphere_radius", "diffusion_time",
+    "central_pressure", "central_hydrogen", "mean_free_path_center", "photosphere_radius", "diffusion_time",
     "diffusion_time_radiative_core", "diffusion_time_uniform", "convective_crossing_time", "energy_transport_time",
     "kelvin_helmholtz_time", "dynamical_time", "eddington_luminosity", "eddington_ratio",
     "convective_core_mass_fraction", "convective_envelope_base_radius", "convective_turnover_time",

@@ -109,6 +109,7 @@ CATALOGUE: dict[str, Quantity] = {q.name: q for q in (
     _q("central_density", "g / cm3", "central density", "central density", r"$\rho_c$", CENTRE),
     _q("central_temperature", "K", "central temperature", "central temperature", r"$T_c$", CENTRE),
     _q("central_pressure", "dyn / cm2", "central pressure", "central pressure", r"$P_c$", CENTRE),
+    _q("central_hydrogen", "", "hydrogen mass fraction at the centre", "central hydrogen", r"$X_c$", CENTRE),
     _q("mean_free_path_center", "cm", "photon mean free path at the centre", "photon mean free path at centre",
        r"$\lambda_c$", CENTRE),
 

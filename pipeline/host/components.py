@@ -68,6 +68,9 @@ class Profile:
     u : ndarray [n, ngrid], erg/g, optional
         Specific internal energy from the model's equation of state; None
         means an ideal monatomic gas plus radiation.
+    X_profile : ndarray [n, ngrid], optional
+        Hydrogen mass fraction through the star when it is not uniform (an
+        evolved star burns its core); None means X throughout.
     scalars : dict, optional
         Model-specific per-sample quantities, name -> [n] (e.g. convective
         turnover times); names and units are listed in the quantity catalogue.
@@ -88,6 +91,7 @@ class Profile:
     convective: np.ndarray | None = None
     v_conv: np.ndarray | None = None
     u: np.ndarray | None = None
+    X_profile: np.ndarray | None = None
     scalars: dict = field(default_factory=dict)
 
     @property

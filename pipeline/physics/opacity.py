@@ -3,9 +3,8 @@
 The built-in opacity components (:mod:`radwalk.plugins.opacity`) are thin adapters onto these functions;
 the structure solver uses :func:`default_kappa` as its reference law.
 
-Every law returns a Rosseland-mean opacity in cm^2/g and broadcasts over all
-of its inputs: the host passes rho and T of shape ``[n, ngrid]`` with X, Z and
-the law's parameters of shape ``[n, 1]``, or everything ``[n]``, or scalars.
+Every function returns a Rosseland-mean opacity in cm^2/g and broadcasts over
+all of its inputs.
 
 The three textbook laws use the coefficients of Carroll & Ostlie (1996,
 *An Introduction to Modern Astrophysics*, eqs. 9.22, 9.23 and 9.28), which

@@ -109,9 +109,11 @@ def photosphere(r, tau):
 def compute(profile: Profile, opacity, L) -> Transport:
     """All transport quantities for a profile, a bound opacity law and luminosities L [n] (erg/s)."""
     p = profile
-    X2, Z2 = p.X[:, None], p.Z[:, None]
+    # An evolved star's hydrogen varies through it; opacity and burning see the local value.
+    X2 = p.X[:, None] if p.X_profile is None else np.asarray(p.X_profile, dtype=float)
+    Z2 = p.Z[:, None]
     L = np.asarray(L, dtype=float)
-    kappa = opacity(p.rho, p.T, p.X, p.Z)
+    kappa = opacity(p.rho, p.T, p.X if p.X_profile is None else X2, p.Z)
     with np.errstate(divide="ignore", over="ignore"):
         krho = kappa * p.rho
         mfp = 1.0 / krho
@@ -187,6 +189,7 @@ def compute(profile: Profile, opacity, L) -> Transport:
         "central_density": p.rho[:, 0],
         "central_temperature": p.T[:, 0],
         "central_pressure": p.P[:, 0],
+        "central_hydrogen": np.broadcast_to(X2, p.rho.shape)[:, 0].copy(),
         "mean_free_path_center": mfp[:, 0],
         "photosphere_radius": photosphere(r, tau),
         "diffusion_time": t_cum[:, -1] / k.YEAR,

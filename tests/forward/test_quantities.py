@@ -89,7 +89,8 @@ def test_model_summary_keys_are_the_documented_ones():
     # diffusion time gave way to the radiative-zone one and the convection keys when the solved star came
     assert [summary_key(n) for n in SUMMARY_ROWS] == [
         "mass_msun", "radius_rsun", "luminosity_lsun", "teff_k", "age_gyr", "mu", "central_density_g_cm3",
-        "central_temperature_k", "central_pressure_dyn_cm2", "mean_free_path_center_cm", "photosphere_radius_rsun",
+        "central_temperature_k", "central_pressure_dyn_cm2", "central_hydrogen", "mean_free_path_center_cm",
+        "photosphere_radius_rsun",
         "diffusion_time_yr", "diffusion_time_radiative_core_yr", "diffusion_time_uniform_yr",
         "convective_crossing_time_yr", "energy_transport_time_yr", "kelvin_helmholtz_time_yr",
         "dynamical_time_s", "eddington_luminosity_lsun", "eddington_ratio", "convective_core_mass_fraction",

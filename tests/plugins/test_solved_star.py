@@ -8,7 +8,7 @@ import pytest
 
 from radwalk.cli.main import main
 
-NEW_KEYS = ("age_gyr", "convective_core_mass_fraction", "convective_envelope_base_radius",
+NEW_KEYS = ("age_gyr", "central_hydrogen", "convective_core_mass_fraction", "convective_envelope_base_radius",
             "convective_turnover_time_d", "convective_turnover_time_global_d", "energy_transport_time_yr",
             "diffusion_time_radiative_core_yr", "convective_crossing_time_yr")
 
@@ -49,11 +49,22 @@ def test_a_massive_star_has_a_convective_core_and_no_deep_envelope(capsys):
     assert d["convective_envelope_base_radius"] > 0.95
 
 
-def test_ages_other_than_zero_are_refused_in_one_line(capsys):
-    code, _, err = run(capsys, "model", "--mass", "1", "--age", "2")
+def test_an_aged_star_has_burnt_its_centre_and_brightened(capsys):
+    young = model_json(capsys, "--mass", "1", "--X", "0.70", "--Z", "0.02", "--age", "0")
+    old = model_json(capsys, "--mass", "1", "--X", "0.70", "--Z", "0.02", "--age", "4.57")
+    assert old["age_gyr"] == 4.57 and young["central_hydrogen"] == pytest.approx(0.70)
+    # A solar-mass star brightens by ~30-40 % and burns about half its central hydrogen in its first
+    # 4.6 Gyr (standard solar models, e.g. Bahcall, Pinsonneault & Basu 2001; from memory).
+    assert 0.25 < old["central_hydrogen"] < 0.50
+    assert 1.1 < old["luminosity_lsun"] / young["luminosity_lsun"] < 1.6
+    assert old["central_density_g_cm3"] > young["central_density_g_cm3"]
+
+
+def test_an_age_past_the_main_sequence_is_refused_in_one_line(capsys):
+    code, _, err = run(capsys, "model", "--mass", "3", "--age", "2")
     assert code == 2
     lines = [x for x in err.strip().splitlines() if not x.startswith("warning:")]
-    assert len(lines) == 1 and "main-sequence evolution is not built yet" in lines[0]
+    assert len(lines) == 1 and "beyond the end of the main sequence" in lines[0], err
 
 
 @pytest.mark.parametrize("argv,needle", [

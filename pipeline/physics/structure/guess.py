@@ -54,7 +54,7 @@ class IonisedGasState(NamedTuple):
     Gamma_1: np.ndarray
 
 
-def ionised_gas_state(rho, T, X, Z) -> IonisedGasState:
+def ionised_gas_state(rho, T, X, Z, radiation: bool = True) -> IonisedGasState:
     """Fully ionised ideal gas plus black-body radiation, for the first stage of a polytrope start only.
 
     Parameters
@@ -62,6 +62,8 @@ def ionised_gas_state(rho, T, X, Z) -> IonisedGasState:
     rho : array_like, g/cm^3
     T : array_like, K
     X, Z : array_like
+    radiation : bool
+        False leaves the radiation out (a pure ideal gas, for idealised tests).
 
     Returns
     -------
@@ -82,7 +84,7 @@ def ionised_gas_state(rho, T, X, Z) -> IonisedGasState:
     rho, T, X, Z = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (rho, T, X, Z)))
     mu = mean_weight(X, Z)
     p_gas = rho * const.K_B * T / (mu * const.M_U)
-    p_rad = const.A_RAD * T**4 / 3.0
+    p_rad = const.A_RAD * T**4 / 3.0 if radiation else np.zeros_like(T)
     P = p_gas + p_rad
     beta = p_gas / P
     chi_T = 4.0 - 3.0 * beta

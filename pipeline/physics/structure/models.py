@@ -13,8 +13,10 @@ mass-radius-luminosity relation) go through :func:`solved_stars`, which
   a solar-mass star (:func:`_by_mass_continuation`) and, for an unusual opacity
   law, by continuation from the built-in law (:func:`_by_opacity_continuation`).
 
-Ages above zero need main-sequence evolution, which is not built yet: they are
-refused with a clear error rather than answered with a zero-age star.
+A star with an age is evolved along its main-sequence track from the zero-age
+model (:mod:`radwalk.physics.structure.evolution`, one track each, 2-6 s of
+CPU); an age past central hydrogen exhaustion is refused with a clear error
+rather than answered with an extrapolated star.
 """
 
 from __future__ import annotations
@@ -177,7 +179,7 @@ def _by_opacity_continuation(M, X, Z, kappa, alpha, first_error) -> StarStructur
 
 
 def solved_stars(M, X, Z, kappa, *, alpha_mlt=1.8, age=0.0) -> list[StarStructure]:
-    """Solved zero-age structures of ``n`` samples.
+    """Solved structures of ``n`` samples at their ages on the main sequence.
 
     Parameters
     ----------
@@ -189,7 +191,7 @@ def solved_stars(M, X, Z, kappa, *, alpha_mlt=1.8, age=0.0) -> list[StarStructur
     alpha_mlt : array_like [n] or scalar
         Mixing-length parameter.
     age : array_like [n] or scalar, Gyr
-        Must be 0 (zero-age main sequence) until evolution is built.
+        Age since the zero-age main sequence (0: zero-age).
 
     Returns
     -------
@@ -199,7 +201,7 @@ def solved_stars(M, X, Z, kappa, *, alpha_mlt=1.8, age=0.0) -> list[StarStructur
     Raises
     ------
     ConfigError
-        For an age other than 0, or inputs outside the solver's range.
+        For a negative age, or inputs outside the solver's range.
     ModelError
         When a star does not converge (the message names it).
     """
@@ -207,13 +209,42 @@ def solved_stars(M, X, Z, kappa, *, alpha_mlt=1.8, age=0.0) -> list[StarStructur
     n = M.size
     X, Z, alpha, age = (np.broadcast_to(np.asarray(v, dtype=float).reshape(-1) if np.ndim(v) else v, (n,))
                         for v in (X, Z, alpha_mlt, age))
-    if np.any(age != 0.0):
-        bad = float(age[age != 0.0][0])
-        raise ConfigError(f"age = {bad:g} Gyr: the solved models are zero-age main-sequence stars (age 0); "
-                          "main-sequence evolution is not built yet")
+    if np.any((age < 0.0) | ~np.isfinite(age)):
+        raise ConfigError(f"age = {float(age[(age < 0) | ~np.isfinite(age)][0]):g} Gyr: an age must be >= 0")
     okey = opacity_key(kappa)
     out: list = [None] * n
     for i in np.argsort(M, kind="stable"):  # increasing mass: each star starts from its solved neighbour
         key = _key(M[i], X[i], Z[i], alpha[i], okey)
-        out[i] = _solve_one(M[i], X[i], Z[i], _sample_opacity(kappa, i), alpha[i], key)
+        law = _sample_opacity(kappa, i)
+        zams = _solve_one(M[i], X[i], Z[i], law, alpha[i], key)
+        out[i] = zams if age[i] == 0.0 else _evolved(zams, M[i], X[i], Z[i], law, alpha[i], float(age[i]), key)
     return out
+
+
+def _evolved(zams: StarStructure, M, X, Z, kappa, alpha, age_gyr: float, key) -> StarStructure:
+    """The star at ``age_gyr`` on its main-sequence track (kept in memory like the zero-age ones).
+
+    Raises
+    ------
+    ModelError
+        When the age lies beyond the end of the main sequence (central hydrogen exhausted) for this mass and
+        composition: the models here are main-sequence stars and say so rather than extrapolate.
+    """
+    from radwalk.physics.structure.evolution import X_C_END, evolve
+
+    aged_key = key + (round(age_gyr, 9),)
+    if aged_key in _MEMORY:
+        _MEMORY.move_to_end(aged_key)
+        return _MEMORY[aged_key]
+    gyr = 1e9 * k.YEAR
+    track = evolve(M, X, Z, kappa, alpha_mlt=alpha, age_end=age_gyr * gyr, start=zams)
+    if track.age[-1] < age_gyr * gyr * (1.0 - 1e-9):
+        raise ModelError(
+            f"age {age_gyr:g} Gyr is beyond the end of the main sequence of a {M / k.M_SUN:.4g} M_sun star with "
+            f"X = {X:.4g}, Z = {Z:.4g}: central hydrogen falls to {X_C_END:g} at "
+            f"{track.age[-1] / gyr:.4g} Gyr ({track.stop_reason})")
+    star = track.models[-1]
+    _MEMORY[aged_key] = star
+    while len(_MEMORY) > _MEMORY_SIZE:
+        _MEMORY.popitem(last=False)
+    return star

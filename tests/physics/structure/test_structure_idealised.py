@@ -26,43 +26,15 @@ from radwalk import constants as const
 from radwalk.physics.composition import mu as mean_weight
 from radwalk.physics.lane_emden import solve as lane_emden
 from radwalk.physics.polytrope import eddington_beta
+from radwalk.physics.structure.guess import ionised_gas_state
 from radwalk.physics.structure.solver import solve_star
 
 X, Z = 0.7, 0.02
 
 
-class IdealState(NamedTuple):
-    P: np.ndarray
-    P_gas: np.ndarray
-    P_rad: np.ndarray
-    u: np.ndarray
-    mu: np.ndarray
-    chi_rho: np.ndarray
-    chi_T: np.ndarray
-    delta: np.ndarray
-    c_P: np.ndarray
-    c_V: np.ndarray
-    nabla_ad: np.ndarray
-    Gamma_1: np.ndarray
-
-
-def ideal_eos(rho, T, X, Z, radiation=True):
-    """Fully ionised ideal gas (+ radiation): KWW 2012 ch. 13 (beta form of c_V, c_P, nabla_ad)."""
-    rho, T, X, Z = np.broadcast_arrays(*(np.asarray(a, dtype=float) for a in (rho, T, X, Z)))
-    mu = mean_weight(X, Z)
-    p_gas = rho * const.K_B * T / (mu * const.M_U)
-    p_rad = const.A_RAD * T**4 / 3.0 if radiation else np.zeros_like(T)
-    P = p_gas + p_rad
-    beta = p_gas / P
-    chi_rho = beta
-    chi_T = 4.0 - 3.0 * beta
-    c_V = const.K_B / (mu * const.M_U) * (1.5 + 12.0 * (1.0 - beta) / beta)
-    c_P = c_V + P * chi_T**2 / (rho * T * chi_rho)
-    delta = chi_T / chi_rho
-    nabla_ad = P * delta / (rho * T * c_P)
-    u = 1.5 * p_gas / rho + 3.0 * p_rad / rho
-    return IdealState(P, p_gas, p_rad, u, mu, chi_rho, chi_T, delta, c_P, c_V, nabla_ad,
-                      chi_rho / (1.0 - chi_T * nabla_ad))
+# The fully ionised ideal gas (+ radiation) of the solver's first start stage, Kippenhahn, Weigert & Weiss 2012,
+# ch. 13 (beta form of c_V, c_P, nabla_ad).
+ideal_eos = ionised_gas_state
 
 
 def gas_only_eos(rho, T, X, Z):
