@@ -14,13 +14,13 @@ import sys
 import warnings
 
 from radwalk import __version__
-from radwalk.cli import check, demo, fit, model, plugins, report, run
+from radwalk.cli import check, demo, fit, grid, model, plugins, report, run
 from radwalk.cli.args import common_parser
 from radwalk.errors import RadwalkError
 
 SUBCOMMANDS = (
     model.add_model_parser, plugins.add_plugins_parser, fit.add_fit_parser, check.add_check_parser,
-    run.add_run_parser, report.add_report_parser, demo.add_demo_parser,
+    run.add_run_parser, report.add_report_parser, demo.add_demo_parser, grid.add_grid_parser,
 )
 
 

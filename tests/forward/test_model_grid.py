@@ -1,0 +1,224 @@
+"""The grid of main-sequence tracks: phase coordinate, interpolation, cache and provenance, the command.
+
+One tiny grid (3 masses x 2 Z, coarse steps) is built once for the module on the local pool (~25 s of CPU);
+the accuracy targets need a denser grid and are checked in the slow test at the end.
+"""
+
+from __future__ import annotations
+
+import hashlib
+import importlib
+import sys
+import textwrap
+
+import numpy as np
+import pytest
+
+from radwalk import constants as const
+from radwalk.forward import model_grid as mg
+from radwalk.physics.opacity import default_kappa
+from radwalk.physics.structure.calibration import CALIBRATED_Y0, composition_from_helium
+
+TINY = mg.GridSpec(mass_range=(1.5, 3.0), n_mass=3, z_range=(0.01, 0.02), n_z=2, dXc=0.05)
+
+
+@pytest.fixture(scope="module")
+def cache(tmp_path_factory):
+    folder = tmp_path_factory.mktemp("cache")
+    with pytest.MonkeyPatch.context() as mp:
+        mp.setenv("RADWALK_CACHE", str(folder))
+        yield folder
+
+
+@pytest.fixture(scope="module")
+def tiny(cache):
+    return mg.cached_grid(default_kappa, TINY, workers=2, progress=False)
+
+
+def _stars_at_nodes(grid, i, j):
+    truth = grid.node(i, j)
+    n = grid.shape[2]
+    M = np.full(n, 10.0 ** grid.log_mass[i] * const.M_SUN)
+    Z = np.full(n, 10.0 ** grid.log_z[j])
+    return M, Z, truth
+
+
+def test_every_track_reaches_the_end_of_the_main_sequence(tiny):
+    assert tiny.header["build"]["failed"] == []
+    assert np.all(np.isfinite(tiny.lifetime))
+    # More massive stars live shorter (t_MS ~ M / L with L rising steeper than M; KWW 2012, ch. 30).
+    assert np.all(np.diff(tiny.lifetime, axis=0) < 0)
+
+
+def test_phase_coordinate_is_monotone(tiny):
+    for i in range(tiny.shape[0]):
+        for j in range(tiny.shape[1]):
+            node = tiny.node(i, j)
+            assert np.all(np.diff(node["age"]) > 0)
+            xc = node["central_hydrogen"]
+            assert np.all(np.diff(xc) <= 1e-6)  # hydrogen only burns (float32 storage: 1e-7 of X)
+            assert xc[0] == pytest.approx(tiny.X0[j], rel=1e-6)  # phase 0: the zero-age, uniform star
+            # phase 1: X_c = X_end by definition, up to the difference between the two monotone cubics through
+            # the steps, age(X_c) for the lifetime and X_c(age) for the stored values (steps 0.05 in X apart).
+            assert xc[-1] == pytest.approx(TINY.X_end, abs=1e-4)
+    # Between the nodes the interpolated phase grows with age at fixed mass and Z.
+    M = np.full(40, 2.0 * const.M_SUN)
+    Z = np.full(40, 0.014)
+    life = tiny.lifetime_at(M[:1], Z[:1])[0]
+    out, inside = tiny(M, Z, np.linspace(0.0, life, 40))
+    assert inside.all()
+    assert np.all(np.diff(out["phase"]) > 0)
+
+
+def test_interpolation_at_a_node_returns_the_node(tiny):
+    for i in range(tiny.shape[0]):
+        for j in range(tiny.shape[1]):
+            M, Z, truth = _stars_at_nodes(tiny, i, j)
+            got, inside = tiny(M, Z, truth["age"])
+            assert inside.all()
+            for name in tiny.names:
+                np.testing.assert_allclose(got[name], truth[name], rtol=1e-9, atol=0, equal_nan=True, err_msg=name)
+            np.testing.assert_allclose(got["main_sequence_lifetime"], tiny.lifetime[i, j], rtol=1e-12)
+
+
+def test_leave_one_track_out_on_the_tiny_grid(tiny):
+    loo = mg.leave_one_out(tiny, "mass")
+    print("\nleave-one-mass-out on 3 x 2 tracks (spacing 0.15 dex, 0.3 dex once one is left out):")
+    for name, s in loo["summary"].items():
+        print(f"  {name:40s} max {s['max']:.4g}  rms {s['rms']:.4g}")
+    e = loo["errors"]
+    for name in ("luminosity", "teff", "radius", "central_temperature", "diffusion_time"):
+        assert np.all(np.isfinite(e[name])), name
+    assert loo["outside"] == 0
+    # The stand-in for the left-out 2.1 M_sun star lies between its neighbours: at a given fraction of the
+    # main-sequence life a heavier star is brighter and hotter (the mass-luminosity relation).
+    for j in range(tiny.shape[1]):
+        lo, mid, hi = (tiny.node(i, j) for i in range(3))
+        M, Z, _ = _stars_at_nodes(tiny, 1, j)
+        got, _ = tiny.without("mass", 1)(M, Z, mid["age"])
+        phase = got["phase"]
+        for name in ("luminosity", "teff"):
+            a = np.interp(phase, tiny.phase, lo[name])
+            b = np.interp(phase, tiny.phase, hi[name])
+            assert np.all((a < got[name]) & (got[name] < b)), name
+
+
+def test_points_outside_give_nan_and_a_mask(tiny):
+    life = tiny.lifetime_at(np.array([2.0 * const.M_SUN]), 0.014)[0]
+    M = np.array([2.0, 1.0, 4.0, 2.0, 2.0, 2.0, 2.0, np.nan, 2.0, -1.0]) * const.M_SUN
+    Z = np.array([0.014, 0.014, 0.014, 0.005, 0.03, 0.014, 0.014, 0.014, np.nan, 0.014])
+    age = np.array([0.5, 0.5, 0.5, 0.5, 0.5, -0.1, 1.01, 0.5, 0.5, 0.5]) * life
+    out, inside = tiny(M, Z, age)
+    assert inside.tolist() == [True] + [False] * 9
+    for name, v in out.items():
+        assert np.isfinite(v[0]) or name.startswith("convective_turnover"), name
+        assert np.all(np.isnan(v[1:])), name
+
+
+def test_file_holds_float32_table_and_provenance(tiny, cache):
+    path = mg.grid_path(tiny.key)
+    assert path.is_file() and path.parent == cache
+    back = mg.TrackGrid.load(path)
+    assert back.table.dtype == np.float32
+    np.testing.assert_array_equal(back.table, tiny.table)
+    np.testing.assert_array_equal(back.lifetime, tiny.lifetime)
+    h = back.header
+    assert h["format"] == mg.FORMAT and h["key"] == tiny.key
+    for module in ("radwalk.physics.structure.solver", "radwalk.physics.structure.evolution",
+                   "radwalk.physics.structure.eos", "radwalk.physics.nuclear", "radwalk.physics.structure.tracks"):
+        assert module in h["sources"], module
+    import radwalk.physics.opacity as op
+
+    with open(op.__file__, "rb") as fh:
+        assert h["opacity"]["source_sha256"] == hashlib.sha256(fh.read()).hexdigest()
+    assert h["spec"]["n_mass"] == 3 and h["composition_rule"]["Y_p"] == mg.PRIMORDIAL_HELIUM
+
+
+def test_default_composition_passes_through_the_calibrated_sun():
+    X0, Z0 = composition_from_helium(CALIBRATED_Y0)
+    assert mg.helium_fraction(0.0) == pytest.approx(0.2471)  # BBN at the Planck 2018 baryon density, from memory
+    assert mg.helium_fraction(Z0) == pytest.approx(CALIBRATED_Y0, rel=1e-12)
+    assert mg.GridSpec().hydrogen(Z0) == pytest.approx(X0, rel=1e-12)
+
+
+LAW = """
+from radwalk.physics.opacity import default_kappa
+
+SCALE = {scale}
+
+
+def kappa(rho, T, X, Z):
+    return SCALE * default_kappa(rho, T, X, Z)
+"""
+
+
+def test_cache_is_rebuilt_when_the_opacity_source_changes(tmp_path, monkeypatch):
+    monkeypatch.setenv("RADWALK_CACHE", str(tmp_path / "cache"))
+    monkeypatch.syspath_prepend(str(tmp_path))
+    law_file = tmp_path / "scaled_law_for_grid.py"
+    law_file.write_text(textwrap.dedent(LAW.format(scale="1.0")))
+    law = importlib.import_module("scaled_law_for_grid")
+    one = mg.GridSpec(mass_range=(2.0, 2.0), n_mass=1, z_range=(0.014, 0.014), n_z=1, n_phase=11, dXc=0.05)
+    try:
+        assert mg.cached_grid(law.kappa, one, build=False) is None
+        first = mg.cached_grid(law.kappa, one, workers=1, progress=False)
+        again = mg.cached_grid(law.kappa, one, build=False)
+        assert again is not None and again.key == first.key
+        law_file.write_text(textwrap.dedent(LAW.format(scale="1.25")))
+        law = importlib.reload(law)
+        assert mg.grid_key(law.kappa, one) != first.key
+        assert mg.cached_grid(law.kappa, one, build=False) is None
+        second = mg.cached_grid(law.kappa, one, workers=1, progress=False)
+    finally:
+        sys.modules.pop("scaled_law_for_grid", None)
+    assert second.key != first.key
+    assert len(mg.list_grids()) == 2
+    # A more opaque star is fainter (homology: L ~ 1 / kappa_0 at fixed M and mu; KWW 2012, ch. 20).
+    assert second.node(0, 0)["luminosity"][0] < first.node(0, 0)["luminosity"][0]
+
+
+def test_grid_command_lists_and_describes(tiny, cache, capsys):
+    from radwalk.cli.main import main
+
+    assert main(["grid", "list"]) == 0
+    listed = capsys.readouterr().out
+    assert tiny.key in listed
+    assert main(["grid", "info", tiny.key[:8]]) == 0
+    info = capsys.readouterr().out
+    assert "luminosity" in info and "1.5..3.0 M_sun x 3" in info
+    assert main(["grid", "info", "no-such-key"]) == 2
+    assert main(["grid", "build", "--masses", "4", "--metallicities", "2", "--dry-run"]) == 0
+    assert "8 tracks, estimated" in capsys.readouterr().out
+
+
+MODERATE = mg.GridSpec(mass_range=(0.8, 5.0), n_mass=8, z_range=(0.003, 0.04), n_z=3)
+# The issue's accuracy targets on the main sequence (common practice, no source): dex in L and T_eff,
+# relative in R and in the lifetime (age at a given phase).
+TARGETS = {"luminosity": 0.01, "teff": 0.005, "radius": 0.01, "main_sequence_lifetime": 0.02}
+
+
+def _largest_errors(first_left_out):
+    """Largest leave-one-mass-out errors of the moderate grid over left-out masses from index ``first_left_out``."""
+    grid = mg.cached_grid(default_kappa, MODERATE, workers=2, progress=False)
+    e = mg.leave_one_out(grid, "mass")["errors"]
+    return {name: float(np.nanmax(np.abs(e[name][first_left_out - 1:]))) for name in TARGETS}
+
+
+@pytest.mark.slow
+def test_interpolation_accuracy_above_2_5_msun():
+    """Leave-one-mass-out on 8 masses 0.8-5 M_sun x 3 Z (~2.5 CPU minutes, cached after the first run):
+    the left-out 2.96 and 3.85 M_sun tracks, with 0.23 dex between the remaining neighbours."""
+    worst = _largest_errors(5)
+    for name, target in TARGETS.items():
+        assert worst[name] < target, (name, worst[name])
+
+
+@pytest.mark.slow
+@pytest.mark.xfail(strict=True, reason="measured on 8 masses 0.8-5 M_sun x 3 Z, leave-one-mass-out: L 0.077 dex, "
+                   "T_eff 0.026 dex, R 13 %, t_MS 19 % at 1.04 M_sun (and 0.05 dex, 8 %, 15 % at 1.35): the "
+                   "convective core appears between 1.0 and 1.5 M_sun and bends log t_MS(log M); 0.23 dex "
+                   "gaps do not follow it")
+def test_interpolation_accuracy_over_0_8_to_5_msun():
+    worst = _largest_errors(1)
+    for name, target in TARGETS.items():
+        assert worst[name] < target, (name, worst[name])
