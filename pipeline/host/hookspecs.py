@@ -33,7 +33,12 @@ def radwalk_profiles():
         Each answers ``profile(M, R, X, Z, **params) -> Profile`` with
         M [n] in g, R [n] in cm, X, Z [n], parameters [n]; the Profile's
         r, m, rho, P, T, beta arrays have shape [n, ngrid] in cm, g, g/cm^3,
-        dyn/cm^2, K and dimensionless, centre first.
+        dyn/cm^2, K and dimensionless, centre first.  A profile whose method
+        takes an ``opacity`` keyword receives the bound opacity stage
+        (``kappa(rho, T, X, Z)``, cm^2/g) — a model that solves the structure
+        needs it.  A component with ``sets_radius = True`` solves for its own
+        radius and luminosity (Profile.R and Profile.L), which then replace
+        the relation's; it may ignore the R it is given.
     """
 
 
