@@ -184,6 +184,8 @@ class StageSet:
         if self.profile_takes_opacity:
             kwargs["opacity"] = opacity
         prof = self.profile.profile(M, R, X, Z, **kwargs)
+        if getattr(self.profile, "sets_radius", False) and prof.L is not None:
+            L = np.asarray(prof.L, dtype=float)[:, -1]  # a solved star's own luminosity, whatever the relation said
         tr = transport.compute(prof, opacity, L)
         _check_kappa(self.opacity.name, tr.fields["kappa"])
         return prof, tr
