@@ -5,7 +5,7 @@ the import graph):
 
 ``radwalk.host``       hook specs, plugin manager, component protocols, parameters, the stage table
 ``radwalk.physics``    pure numerics in cgs (composition, Lane-Emden, energy generation, transport, ...)
-``radwalk.forward``      the forward model: stage set, relation grid cache, quantity catalogue
+``radwalk.forward``    the forward model: stage set, relation grid cache, quantity catalogue
 ``radwalk.results``    the on-disk contract: files, summary documents, tables
 ``radwalk.inference``  star records, posterior, sampler, fits
 ``radwalk.run``        catalog runs: reader, state, executors, orchestration
@@ -13,7 +13,7 @@ the import graph):
 ``radwalk.cli``        the ``radwalk`` command
 ``radwalk.plugins``    the built-in components
 
-For notebooks, :func:`radwalk.fit` and :func:`radwalk.forward` are the public
+For notebooks, :func:`radwalk.fit` and :func:`radwalk.model` are the public
 entry points; they are imported on first use so ``import radwalk`` stays light.
 """
 

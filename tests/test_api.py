@@ -87,3 +87,17 @@ def test_bad_input_raises_one_clear_error(kwargs, needle):
     with pytest.raises(RadwalkError) as info:
         radwalk.fit(**{"config": FAST, **kwargs})
     assert needle in str(info.value)
+
+
+def test_the_readme_python_example_runs(tmp_path, monkeypatch, capsys):
+    # The README's "From Python" block, as a reader would paste it.
+    from pathlib import Path
+
+    text = (Path(__file__).resolve().parents[1] / "README.md").read_text()
+    block = text.split("```python\n", 1)[1].split("```", 1)[0]
+    monkeypatch.chdir(tmp_path)
+    namespace = {}
+    exec(compile(block, "README.md", "exec"), namespace)  # noqa: S102 - the project's own README
+    assert "p50" in capsys.readouterr().out
+    assert namespace["star"].summary["age_gyr"] == 0.0 and namespace["star"].summary["stages"]["profile"] == "solved"
+    assert namespace["res"].samples["mass"].unit == u.Msun
