@@ -20,20 +20,25 @@ import numpy as np
 
 __all__ = ["fit", "model", "FitResult", "ModelResult"]
 
-_USER_UNITS = {"radius": "R_sun", "luminosity": "L_sun", "teff": "K", "feh": ""}
+
+def _astropy_unit(text: str):
+    """An astropy unit from a catalogue unit string ("R_sun", "g / cm3"; "" is a pure number)."""
+    import astropy.units as u
+
+    return u.Unit(text) if text else u.dimensionless_unscaled
 
 
 def _number(name: str, value) -> float:
-    """A float in radwalk's user unit from a number or an astropy Quantity."""
+    """A float in radwalk's user unit (the quantity catalogue's; [Fe/H] in dex) from a number or a Quantity."""
     import astropy.units as u
 
     from radwalk.errors import ConfigError
+    from radwalk.forward.quantities import quantity
 
     if isinstance(value, u.Quantity):
-        unit = _USER_UNITS[name]
+        unit = "" if name == "feh" else quantity(name).output_unit
         try:
-            target = u.Unit(unit.replace("_sun", "sun")) if unit else u.dimensionless_unscaled
-            return float(value.to_value(target))
+            return float(value.to_value(_astropy_unit(unit)))
         except u.UnitConversionError:
             raise ConfigError(f"{name} in {value.unit} cannot be converted to {unit or 'a pure number'}") from None
     try:
@@ -123,22 +128,16 @@ class FitResult:
 
 
 def _samples_table(products):
-    import astropy.units as u
     from astropy.table import QTable
 
-    from radwalk.forward.quantities import CATALOGUE, output_unit
-
-    def unit_of(text):
-        text = (text or "").replace("_sun", "sun")
-        return u.Unit(text) if text else u.dimensionless_unscaled
+    from radwalk.forward.quantities import output_unit
 
     rows = products.derived_rows
     t = QTable()
     for j, name in enumerate(products.param_names):
-        t[name] = products.samples[rows, j] * unit_of(products.param_units[j])
+        t[name] = products.samples[rows, j] * _astropy_unit(products.param_units[j] or "")
     for name, values in products.derived.items():
-        unit = CATALOGUE[name].output_unit if name in CATALOGUE else output_unit(name)
-        t[name] = np.asarray(values, dtype=float) * unit_of(unit)
+        t[name] = np.asarray(values, dtype=float) * _astropy_unit(output_unit(name))
     return t
 
 
