@@ -69,21 +69,6 @@ def registry():
     return Registry(entry_points=False)
 
 
-@pytest.fixture(scope="module")
-def table(tmp_path_factory):
-    """A small text opacity table (the layout of radwalk.plugins.tabulated), Kramers-like values."""
-    path = tmp_path_factory.mktemp("table") / "table.txt"
-    log_T = np.arange(4.0, 8.01, 0.25)
-    lines = ["# axes: log_rho log_T", "# units: g/cm^3 K cm^2/g"]
-    for X in (0.6, 0.75):
-        lines += [f"# X: {X}", "# Z: 0.02", " ".join(f"{t:.2f}" for t in log_T)]
-        for r in np.arange(-8.0, 2.01, 0.25):
-            k = 0.2 * (1 + X) + 4e24 * 0.02 * (1 + X) * 10**r * 10.0 ** (-3.5 * log_T)
-            lines.append(f"{r:.2f} " + " ".join(f"{v:.8f}" for v in np.log10(k)))
-    path.write_text("\n".join(lines) + "\n")
-    return str(path)
-
-
 # -- the built-in laws pass ---------------------------------------------------------
 @pytest.mark.parametrize("name", ANALYTIC)
 def test_built_in_opacity_laws_pass(registry, name):
@@ -96,11 +81,11 @@ def test_built_in_opacity_laws_pass(registry, name):
     assert 0 < report.seconds_per_million < 10
 
 
-def test_tabulated_passes_once_given_a_table(table):
+def test_tabulated_passes_once_given_a_table(kramers_table):
     (unconfigured,) = check_target("tabulated", entry_points=False)
     assert not unconfigured.passed
     assert "tabulated opacity needs a table: --set table=PATH" in unconfigured.row("call").detail
-    (report,) = check_target("tabulated", options={"table": table}, entry_points=False)
+    (report,) = check_target("tabulated", options={"table": kramers_table}, entry_points=False)
     assert report.passed, report.format_table()
     assert "0.6 <= X <= 0.75" in report.row("validity").detail
 

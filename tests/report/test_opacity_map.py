@@ -20,35 +20,20 @@ def registry():
     return Registry(entry_points=False)
 
 
-@pytest.fixture(scope="module")
-def table(tmp_path_factory):
-    """A small text opacity table (the layout of radwalk.plugins.tabulated), Kramers-like values."""
-    path = tmp_path_factory.mktemp("table") / "table.txt"
-    log_T = np.arange(4.0, 8.01, 0.25)
-    lines = ["# axes: log_rho log_T", "# units: g/cm^3 K cm^2/g"]
-    for X in (0.6, 0.75):
-        lines += [f"# X: {X}", "# Z: 0.02", " ".join(f"{t:.2f}" for t in log_T)]
-        for r in np.arange(-8.0, 2.01, 0.25):
-            k = 0.2 * (1 + X) + 4e24 * 0.02 * (1 + X) * 10**r * 10.0 ** (-3.5 * log_T)
-            lines.append(f"{r:.2f} " + " ".join(f"{v:.8f}" for v in np.log10(k)))
-    path.write_text("\n".join(lines) + "\n")
-    return str(path)
-
-
-def test_log_kappa_map_png(tmp_path, registry, table):
+def test_log_kappa_map_png(tmp_path, registry, kramers_table):
     out = plot_log_kappa_map(registry.entries["opacity"]["combined"], tmp_path / "maps" / "combined.png")
     data = out.read_bytes()
     assert data[:8] == b"\x89PNG\r\n\x1a\n" and len(data) > 10_000
     # a law that refuses points outside its grid is drawn inside it only
     strict = plot_log_kappa_map(registry.entries["opacity"]["tabulated"], tmp_path / "tab.png",
-                                options={"table": table, "outside": "error"})
+                                options={"table": kramers_table, "outside": "error"})
     assert strict.stat().st_size > 10_000
     with pytest.raises(ConfigError, match="draws opacity laws"):
         plot_log_kappa_map(registry.entries["relation"]["homology"], tmp_path / "no.png")
 
 
-def test_the_map_reaches_beyond_the_range_and_blanks_refused_points(registry, table):
-    law = registry.entries["opacity"]["tabulated"].component.configure(table=table, outside="error")
+def test_the_map_reaches_beyond_the_range_and_blanks_refused_points(registry, kramers_table):
+    law = registry.entries["opacity"]["tabulated"].component.configure(table=kramers_table, outside="error")
     LT, LR, logk = log_kappa_grid(law, 0.7, 0.02, grid_points=40)
     # table: log T 4..8, log rho -8..2; the map pads 15 % of each span, at least 0.3 dex
     assert LT.min() == pytest.approx(4.0 - 0.6) and LT.max() == pytest.approx(8.0 + 0.6)
