@@ -238,21 +238,51 @@ def model(mass, X=None, Z=None, *, age=None, profile=None, opacity=None, relatio
     import astropy.units as u
     from astropy.table import QTable
 
+    if isinstance(mass, u.Quantity):
+        mass = mass.to_value(u.Msun)
+    if isinstance(age, u.Quantity):
+        age = age.to_value(u.Gyr)
+    stages = {k: v for k, v in (("profile", profile), ("opacity", opacity), ("relation", relation)) if v}
+    interior = one_star(mass, X, Z, stages=stages, settings=settings, plugins=plugins, age=age)
+    return ModelResult(summary=interior.summary, profile=QTable(interior.profile_table),
+                       warnings=interior.warnings)
+
+
+def one_star(mass, X=None, Z=None, *, stages=None, settings=None, plugins=(), age=None, radius=None,
+             luminosity=None):
+    """The forward model of one star from component names, as `radwalk model` and :func:`model` take them.
+
+    Parameters
+    ----------
+    mass : float, M_sun
+    X, Z : float, optional
+        Default: solar (Asplund et al. 2009).
+    stages : dict, optional
+        Stage name -> component name.
+    settings : dict, optional
+        Component parameters and options by name (strings or numbers).
+    plugins : sequence of str
+        Plugin files.
+    age : float, Gyr, optional
+        Selects the solved models unless ``stages`` names others.
+    radius, luminosity : float, optional
+        R_sun and L_sun replacing the relation's (polytrope profiles only).
+
+    Returns
+    -------
+    radwalk.forward.one_star.Interior
+    """
     from radwalk.constants import X_SUN, Z_SUN
     from radwalk.forward.one_star import model_star, with_age
     from radwalk.host.config import RunConfig
     from radwalk.inference.fit import stages_for
 
-    if isinstance(mass, u.Quantity):
-        mass = mass.to_value(u.Msun)
-    stages = {k: v for k, v in (("profile", profile), ("opacity", opacity), ("relation", relation)) if v}
+    stages = dict(stages or {})
     settings = dict(settings or {})
     if age is not None:
-        with_age(stages, settings, float(age.to_value(u.Gyr) if isinstance(age, u.Quantity) else age))
+        with_age(stages, settings, float(age))
     plugin_paths = tuple(str(Path(p).expanduser().resolve()) for p in plugins)
     built = stages_for(RunConfig(stages=stages, settings=settings, plugins=plugin_paths))
     params = {k: v for k, v in settings.items() if k not in built.option_names()}
-    interior = model_star(built, float(mass), X_SUN if X is None else float(X), Z_SUN if Z is None else float(Z),
-                          params)
-    return ModelResult(summary=interior.summary, profile=QTable(interior.profile_table),
-                       warnings=interior.warnings)
+    return model_star(built, float(mass), X_SUN if X is None else float(X), Z_SUN if Z is None else float(Z),
+                      params, radius=radius, luminosity=luminosity)

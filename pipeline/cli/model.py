@@ -27,23 +27,12 @@ def add_model_parser(sub, common):
 
 
 def cmd_model(args):
-    from pathlib import Path
+    from radwalk.api import one_star
+    from radwalk.forward.one_star import format_summary
 
-    from radwalk.constants import X_SUN, Z_SUN
-    from radwalk.forward.one_star import format_summary, model_star, with_age
-    from radwalk.host.config import RunConfig
-    from radwalk.inference.fit import stages_for
-
-    args.X = X_SUN if args.X is None else args.X
-    args.Z = Z_SUN if args.Z is None else args.Z
     stages_named = {s.name: getattr(args, s.name) for s in STAGE_TABLE if s.forward and getattr(args, s.name)}
-    settings = parse_set(args.set)
-    if args.age is not None:
-        with_age(stages_named, settings, args.age)
-    plugins = tuple(str(Path(p).expanduser().resolve()) for p in args.plugin)
-    stages = stages_for(RunConfig(stages=stages_named, settings=settings, plugins=plugins))
-    params = {k: v for k, v in settings.items() if k not in stages.option_names()}
-    interior = model_star(stages, args.mass, args.X, args.Z, params, radius=args.radius, luminosity=args.luminosity)
+    interior = one_star(args.mass, args.X, args.Z, stages=stages_named, settings=parse_set(args.set),
+                        plugins=args.plugin, age=args.age, radius=args.radius, luminosity=args.luminosity)
     if args.profile_out:
         from radwalk.results.files import write_table
 
