@@ -107,8 +107,7 @@ def _neighbour(key):
 
 def _solve_one(M, X, Z, kappa, alpha, key) -> StarStructure:
     if key in _MEMORY:
-        _MEMORY.move_to_end(key)
-        return _MEMORY[key]
+        return _recalled(key)
     start = _neighbour(key)
     star = None
     if start is not None:
@@ -121,6 +120,17 @@ def _solve_one(M, X, Z, kappa, alpha, key) -> StarStructure:
             star = solve_star(M, X, Z, kappa, alpha_mlt=alpha)
         except ModelError as exc:
             star = _by_mass_continuation(M, X, Z, kappa, alpha) or _by_opacity_continuation(M, X, Z, kappa, alpha, exc)
+    return _remember(key, star)
+
+
+def _recalled(key) -> StarStructure:
+    """A kept star, marked as the most recently used."""
+    _MEMORY.move_to_end(key)
+    return _MEMORY[key]
+
+
+def _remember(key, star: StarStructure) -> StarStructure:
+    """Keeps a solved star (the oldest one goes when the memory is full) and returns it."""
     _MEMORY[key] = star
     while len(_MEMORY) > _MEMORY_SIZE:
         _MEMORY.popitem(last=False)
@@ -234,8 +244,7 @@ def _evolved(zams: StarStructure, M, X, Z, kappa, alpha, age_gyr: float, key) ->
 
     aged_key = key + (round(age_gyr, 9),)
     if aged_key in _MEMORY:
-        _MEMORY.move_to_end(aged_key)
-        return _MEMORY[aged_key]
+        return _recalled(aged_key)
     gyr = 1e9 * k.YEAR
     track = evolve(M, X, Z, kappa, alpha_mlt=alpha, age_end=age_gyr * gyr, start=zams)
     if track.age[-1] < age_gyr * gyr * (1.0 - 1e-9):
@@ -243,8 +252,4 @@ def _evolved(zams: StarStructure, M, X, Z, kappa, alpha, age_gyr: float, key) ->
             f"age {age_gyr:g} Gyr is beyond the end of the main sequence of a {M / k.M_SUN:.4g} M_sun star with "
             f"X = {X:.4g}, Z = {Z:.4g}: central hydrogen falls to {X_C_END:g} at "
             f"{track.age[-1] / gyr:.4g} Gyr ({track.stop_reason})")
-    star = track.models[-1]
-    _MEMORY[aged_key] = star
-    while len(_MEMORY) > _MEMORY_SIZE:
-        _MEMORY.popitem(last=False)
-    return star
+    return _remember(aged_key, track.models[-1])
