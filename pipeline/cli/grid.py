@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 from radwalk.cli.args import finite_float, int_at_least
+from radwalk.errors import ConfigError
 
 
 def add_grid_parser(sub, common):
@@ -10,19 +11,28 @@ def add_grid_parser(sub, common):
     gs = g.add_subparsers(dest="grid_command", required=True)
 
     b = gs.add_parser("build", parents=[common], help="compute a grid of tracks (cached; reused when it exists)")
-    b.add_argument("--mass-range", type=finite_float, nargs=2, metavar=("LOW", "HIGH"), default=(0.6, 8.0),
-                   help="smallest and largest mass, M_sun (default 0.6 8)")
-    b.add_argument("--masses", type=int_at_least(1), default=20, help="masses, equally spaced in log M (default 20)")
-    b.add_argument("--z-range", type=finite_float, nargs=2, metavar=("LOW", "HIGH"), default=(0.003, 0.04),
-                   help="smallest and largest metal fraction Z (default 0.003 0.04)")
-    b.add_argument("--metallicities", type=int_at_least(1), default=6,
-                   help="metallicities, equally spaced in log Z (default 6)")
+    b.add_argument("--mass-range", type=finite_float, nargs=2, metavar=("LOW", "HIGH"), default=None,
+                   help="smallest and largest mass, M_sun, with --masses equally spaced in log M "
+                        "(default: the default grid's 30 masses over 0.6-8, closer over 0.9-1.3)")
+    b.add_argument("--masses", type=int_at_least(1), default=None, help="masses over --mass-range (default 20)")
+    b.add_argument("--z-range", type=finite_float, nargs=2, metavar=("LOW", "HIGH"), default=None,
+                   help="smallest and largest metal fraction Z, with --metallicities equally spaced in log Z "
+                        "(default: the default grid's 7 values over 0.003-0.04)")
+    b.add_argument("--metallicities", type=int_at_least(1), default=None,
+                   help="metallicities over --z-range (default 6)")
+    b.add_argument("--for-catalog", metavar="CATALOG", default=None,
+                   help="only the default grid's tracks this catalog's stars can need (from their luminosities "
+                        "and [Fe/H]): a custom opacity law's grid at a fraction of the cost")
     b.add_argument("--phases", type=int_at_least(2), default=51, help="phase points per track (default 51)")
     b.add_argument("--X", type=finite_float, default=None,
                    help="one initial hydrogen fraction for every track (default: Y = Y_p + dY/dZ Z)")
     b.add_argument("--overshoot", type=finite_float, default=0.0, help="step core overshoot, pressure scale heights")
     b.add_argument("--opacity", default=None, help="opacity law by name (default: the built-in law of the solver)")
     b.add_argument("--workers", type=int_at_least(1), default=None, help="processes (default: all cores)")
+    b.add_argument("--executor", choices=("local", "dask"), default="local",
+                   help="where the tracks are computed: a local process pool or a Dask cluster (default local)")
+    b.add_argument("--scheduler", default=None,
+                   help="address of a running Dask scheduler (with --executor dask; default: a local cluster)")
     b.add_argument("--dry-run", action="store_true", help="print the estimated cost and stop")
     b.add_argument("--no-progress", action="store_true", help="no progress bar")
     b.set_defaults(func=cmd_grid_build)
@@ -54,13 +64,48 @@ def _opacity(args):
     return stages.bound_opacity(stages.defaults())
 
 
+def _for_catalog(spec, path):
+    """The spec cut to the tracks a catalog's stars can need (prints what it kept)."""
+    import numpy as np
+
+    from radwalk.forward.model_grid import catalog_ranges
+    from radwalk.run.catalog import read_catalog
+
+    catalog = read_catalog(path)
+    L = [e.star.user_values()["luminosity"][0] for e in catalog if e.star is not None]
+    feh = [e.star.feh if e.star.feh is not None else (np.nan, np.nan) for e in catalog if e.star is not None]
+    mass_range, z_range = catalog_ranges(L, feh, spec)
+    cut = spec.restricted(mass_range, z_range)
+    print(f"{catalog.path.name}: {catalog.n_usable} stars need {cut.n_mass} of {spec.n_mass} masses "
+          f"({cut.mass_range[0]:g}-{cut.mass_range[1]:g} M_sun) and {cut.n_z} of {spec.n_z} metallicities "
+          f"(Z {cut.z_range[0]:g}-{cut.z_range[1]:g})")
+    return cut
+
+
 def cmd_grid_build(args):
     import os
 
-    from radwalk.forward.model_grid import GridSpec, cached_grid, describe, estimate_cpu_seconds, grid_key, grid_path
+    from radwalk.forward.model_grid import (
+        DEFAULT_MASS_NODES,
+        DEFAULT_Z_NODES,
+        GridSpec,
+        cached_grid,
+        describe,
+        estimate_cpu_seconds,
+        grid_key,
+        grid_path,
+    )
 
-    spec = GridSpec(mass_range=tuple(args.mass_range), n_mass=args.masses, z_range=tuple(args.z_range),
-                    n_z=args.metallicities, n_phase=args.phases, alpha_ov=args.overshoot, X=args.X)
+    # A count alone spreads that many tracks over the default grid's range.
+    mass_range = args.mass_range or ((DEFAULT_MASS_NODES[0], DEFAULT_MASS_NODES[-1]) if args.masses else None)
+    z_range = args.z_range or ((DEFAULT_Z_NODES[0], DEFAULT_Z_NODES[-1]) if args.metallicities else None)
+    spec = GridSpec(mass_range=tuple(mass_range) if mass_range else None, n_mass=args.masses,
+                    z_range=tuple(z_range) if z_range else None, n_z=args.metallicities,
+                    n_phase=args.phases, alpha_ov=args.overshoot, X=args.X)
+    if args.for_catalog:
+        spec = _for_catalog(spec, args.for_catalog)
+    if args.scheduler and args.executor != "dask":
+        raise ConfigError("--scheduler needs --executor dask")
     kappa = _opacity(args)
     path = grid_path(grid_key(kappa, spec))
     workers = args.workers or os.cpu_count() or 1
@@ -73,7 +118,12 @@ def cmd_grid_build(args):
           f"minutes on {min(workers, tracks)} workers (rough: ~{cpu / tracks:.0f} s per track)")
     if args.dry_run:
         return 0
-    grid = cached_grid(kappa, spec, workers=workers, progress=not args.no_progress)
+    runner = None
+    if args.executor == "dask":
+        from radwalk.run.executors import dask_tracks
+
+        runner = dask_tracks(args.scheduler)
+    grid = cached_grid(kappa, spec, workers=workers, progress=not args.no_progress, runner=runner)
     header = dict(grid.header, path=str(path), size_bytes=path.stat().st_size if path.is_file() else 0)
     print(describe(header))
     for f in grid.header["build"]["failed"]:

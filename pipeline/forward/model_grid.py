@@ -75,7 +75,9 @@ from radwalk.physics.structure.tracks import NAMES, QUANTITIES, PhaseTrack
 
 __all__ = ["GridSpec", "TrackGrid", "build_grid", "cached_grid", "grid_key", "grid_path", "list_grids",
            "estimate_cpu_seconds", "leave_one_out", "helium_fraction", "solver_sources", "opacity_identity",
-           "PRIMORDIAL_HELIUM", "HELIUM_PER_METALS", "FORMAT", "VERSION", "describe", "NAMES"]
+           "PRIMORDIAL_HELIUM", "HELIUM_PER_METALS", "FORMAT", "VERSION", "describe", "NAMES", "local_tracks",
+           "shipped_path", "SHIPPED_DIR", "DEFAULT_MASS_NODES", "DEFAULT_Z_NODES", "metallicity_from_feh",
+           "catalog_ranges"]
 
 FORMAT = "radwalk-track-grid"
 VERSION = 1
@@ -90,6 +92,15 @@ HELIUM_PER_METALS = (CALIBRATED_Y0 - PRIMORDIAL_HELIUM) / _SUN_Z0
 SECONDS_PER_TRACK = 6.0
 """CPU seconds of one track at dXc = 0.02 and 400 mesh points (measured 4.8-7.9 s over 0.6-8 M_sun on the
 development machine; the lower masses take longer).  Used only for the estimate shown before a build."""
+
+DEFAULT_MASS_NODES = (0.6, 0.7, 0.8, 0.9, 0.95, 1.0, 1.05, 1.1, 1.15, 1.2, 1.25, 1.3, 1.4, 1.5, 1.6, 1.7, 1.85,
+                      2.0, 2.2, 2.5, 2.8, 3.2, 3.6, 4.0, 4.5, 5.0, 5.7, 6.4, 7.2, 8.0)
+"""Track masses of the default grid, M_sun: 0.05 M_sun apart over 0.9-1.3 M_sun, where convective cores appear
+and the tracks change shape fastest (a grid equally spaced in log M missed the interpolation targets there),
+about 0.05 dex apart above."""
+
+DEFAULT_Z_NODES = (0.003, 0.0046, 0.0071, 0.011, 0.017, 0.026, 0.04)
+"""Metallicities of the default grid: 0.003-0.04 (about [Fe/H] -0.7 to +0.45), 0.19 dex apart."""
 
 _PREFIX = "trackgrid-"
 _SOURCE_ROOT = "radwalk.physics.structure.tracks"  # the modules it imports, transitively, compute the tracks
@@ -116,12 +127,16 @@ class GridSpec:
 
     Attributes
     ----------
-    mass_range : (float, float), M_sun
+    mass_range : (float, float) or None, M_sun
         Smallest and largest mass; ``n_mass`` masses equally spaced in log M.
-    n_mass : int
-    z_range : (float, float)
-        Smallest and largest Z; ``n_z`` values equally spaced in log Z.
-    n_z : int
+        None (and no ``mass_nodes``): the default nodes :data:`DEFAULT_MASS_NODES`.
+    n_mass : int or None
+        Default 20 with a ``mass_range``.
+    z_range : (float, float) or None
+        Smallest and largest Z; ``n_z`` values equally spaced in log Z.  None
+        (and no ``z_nodes``): :data:`DEFAULT_Z_NODES`.
+    n_z : int or None
+        Default 6 with a ``z_range``.
     n_phase : int
         Phase points 0..1 per track.
     alpha_mlt : float
@@ -137,12 +152,16 @@ class GridSpec:
     X : float or None
         A fixed initial hydrogen fraction for every track, instead of the
         helium-enrichment rule (then Y = 1 - X - Z).
+    mass_nodes, z_nodes : tuple of float or None
+        Explicit track masses (M_sun) and metallicities, increasing; they take
+        the place of a range.  After construction both always hold the nodes,
+        and the ranges and counts describe them.
     """
 
-    mass_range: tuple = (0.6, 8.0)
-    n_mass: int = 20
-    z_range: tuple = (0.003, 0.04)
-    n_z: int = 6
+    mass_range: tuple | None = None
+    n_mass: int | None = None
+    z_range: tuple | None = None
+    n_z: int | None = None
     n_phase: int = 51
     alpha_mlt: float = CALIBRATED_ALPHA
     alpha_ov: float = 0.0
@@ -150,17 +169,33 @@ class GridSpec:
     X_end: float = X_C_END
     n_mesh: int = 400
     X: float | None = None
+    mass_nodes: tuple | None = None
+    z_nodes: tuple | None = None
 
     def __post_init__(self):
-        object.__setattr__(self, "mass_range", tuple(float(v) for v in self.mass_range))
-        object.__setattr__(self, "z_range", tuple(float(v) for v in self.z_range))
-        for name, (lo, hi), n, (vmin, vmax) in (("mass", self.mass_range, self.n_mass, MASS_RANGE),
-                                                 ("Z", self.z_range, self.n_z, Z_RANGE)):
-            if not (vmin <= lo <= hi <= vmax and math.isfinite(lo) and math.isfinite(hi)):
-                raise ConfigError(f"the {name} range {lo:g}..{hi:g} is outside the solver's {vmin:g}..{vmax:g}")
-            if int(n) < 1 or (n == 1) != (lo == hi):
-                raise ConfigError(f"{n} {name} values over {lo:g}..{hi:g}: give one value for an equal range, "
-                                  "at least two otherwise")
+        axes = (("mass", "mass_nodes", "mass_range", "n_mass", DEFAULT_MASS_NODES, 20, MASS_RANGE),
+                ("Z", "z_nodes", "z_range", "n_z", DEFAULT_Z_NODES, 6, Z_RANGE))
+        for name, node_field, range_field, count_field, default_nodes, default_count, (vmin, vmax) in axes:
+            nodes, rng, n = getattr(self, node_field), getattr(self, range_field), getattr(self, count_field)
+            if nodes is None and rng is None:
+                nodes = default_nodes
+            if nodes is None:
+                lo, hi = (float(v) for v in rng)
+                n = default_count if n is None else int(n)
+                if not (math.isfinite(lo) and math.isfinite(hi)) or n < 1 or (n == 1) != (lo == hi) or hi < lo:
+                    raise ConfigError(f"{n} {name} values over {lo:g}..{hi:g}: give one value for an equal range, "
+                                      "at least two over an increasing one")
+                nodes = np.geomspace(lo, hi, n) if n > 1 else np.array([lo])
+            nodes = tuple(float(v) for v in nodes)
+            if not nodes or not all(math.isfinite(v) and v > 0 for v in nodes) or \
+                    any(b <= a for a, b in zip(nodes, nodes[1:])):
+                raise ConfigError(f"the {name} nodes must be positive, finite and increasing: {nodes}")
+            if not (vmin <= nodes[0] and nodes[-1] <= vmax):
+                raise ConfigError(f"the {name} range {nodes[0]:g}..{nodes[-1]:g} is outside the solver's "
+                                  f"{vmin:g}..{vmax:g}")
+            object.__setattr__(self, node_field, nodes)
+            object.__setattr__(self, range_field, (nodes[0], nodes[-1]))
+            object.__setattr__(self, count_field, len(nodes))
         if self.n_phase < 2:
             raise ConfigError(f"n_phase = {self.n_phase}: a track needs at least 2 phase points")
         for Z in self.metallicities():
@@ -171,11 +206,45 @@ class GridSpec:
 
     def masses(self) -> np.ndarray:
         """Masses of the tracks, M_sun, [n_mass]."""
-        return np.geomspace(self.mass_range[0], self.mass_range[1], self.n_mass)
+        return np.array(self.mass_nodes)
 
     def metallicities(self) -> np.ndarray:
         """Metal fractions of the tracks, [n_z]."""
-        return np.geomspace(self.z_range[0], self.z_range[1], self.n_z)
+        return np.array(self.z_nodes)
+
+    def restricted(self, mass_range=None, z_range=None, margin: int = 2) -> GridSpec:
+        """The same tracks, only those needed to cover a mass and metallicity range.
+
+        Parameters
+        ----------
+        mass_range : (float, float), optional, M_sun
+        z_range : (float, float), optional
+        margin : int
+            Nodes kept beyond each end of the range, so that the 4-point
+            interpolation stencils inside the range are those of the full grid.
+
+        Returns
+        -------
+        GridSpec
+            With explicit node tuples; raises ConfigError for a range that
+            does not overlap the grid.
+        """
+        def cut(nodes, rng, name):
+            nodes = np.asarray(nodes)
+            if rng is None:
+                return tuple(nodes)
+            lo, hi = sorted(float(v) for v in rng)
+            if hi < nodes[0] or lo > nodes[-1]:
+                raise ConfigError(f"the {name} range {lo:g}..{hi:g} is outside the grid's "
+                                  f"{nodes[0]:g}..{nodes[-1]:g}")
+            i0 = max(int(np.searchsorted(nodes, lo, side="right")) - 1 - margin, 0)
+            i1 = min(int(np.searchsorted(nodes, hi, side="left")) + 1 + margin, nodes.size)
+            return tuple(float(v) for v in nodes[i0:i1])
+
+        from dataclasses import replace
+
+        return replace(self, mass_nodes=cut(self.masses(), mass_range, "mass"),
+                       z_nodes=cut(self.metallicities(), z_range, "Z"))
 
     def hydrogen(self, Z: float) -> float:
         """Initial X of the tracks at metallicity Z (the fixed X, or 1 - Y(Z) - Z)."""
@@ -308,6 +377,15 @@ def _spec_dict(spec: GridSpec) -> dict:
 def grid_key(kappa, spec: GridSpec, key_extra: str = "") -> str:
     """Hex key of the grid for this opacity and spec (changes with any source the tracks use)."""
     return hashlib.sha256(json.dumps(_identity(kappa, spec, key_extra), sort_keys=True).encode()).hexdigest()[:20]
+
+
+SHIPPED_DIR = Path(__file__).resolve().parent.parent / "data" / "grids"
+"""Grids that ship with the package (read only): the default stages' grid, made by ``radwalk grid build``."""
+
+
+def shipped_path(key: str) -> Path:
+    """Where a shipped grid of ``key`` would be."""
+    return SHIPPED_DIR / f"{_PREFIX}{key}.npz"
 
 
 def grid_path(key: str) -> Path:
@@ -591,8 +669,28 @@ def _picklable(obj) -> bool:
         return False
 
 
+def local_tracks(fn, tasks, workers: int):
+    """Run ``fn(*args)`` for every ``(key, args)`` of ``tasks`` on a spawned local process pool.
+
+    Yields ``(key, result)`` as tracks finish (in any order).  The default
+    runner of :func:`build_grid`; :func:`radwalk.run.executors.dask_tracks`
+    runs the same tasks on a Dask cluster.
+    """
+    from concurrent.futures import ProcessPoolExecutor, as_completed
+    from multiprocessing import get_context
+
+    if workers <= 1 or len(tasks) <= 1:
+        for key, args in tasks:
+            yield key, fn(*args)
+        return
+    with ProcessPoolExecutor(max_workers=min(workers, len(tasks)), mp_context=get_context("spawn")) as pool:
+        futures = {pool.submit(fn, *args): key for key, args in tasks}
+        for fut in as_completed(futures):
+            yield futures[fut], fut.result()
+
+
 def build_grid(kappa, spec: GridSpec | None = None, *, workers: int | None = None, progress: bool = True,
-               key_extra: str = "") -> TrackGrid:
+               key_extra: str = "", runner=None) -> TrackGrid:
     """Compute every track of ``spec`` and assemble the grid (not saved; see :func:`cached_grid`).
 
     Parameters
@@ -611,6 +709,11 @@ def build_grid(kappa, spec: GridSpec | None = None, *, workers: int | None = Non
     key_extra : str
         Added to the grid's identity (for opacity closures whose captured values
         the source hash cannot see).
+    runner : callable, optional
+        ``runner(fn, tasks, workers)`` yielding ``(key, fn(*args))`` for every
+        ``(key, args)`` in ``tasks`` as they finish; default
+        :func:`local_tracks` (a spawned process pool).  A Dask cluster:
+        :func:`radwalk.run.executors.dask_tracks`.
 
     Returns
     -------
@@ -618,8 +721,6 @@ def build_grid(kappa, spec: GridSpec | None = None, *, workers: int | None = Non
         Tracks that failed are NaN (their reasons in ``header["build"]["failed"]``).
     """
     import warnings
-    from concurrent.futures import ProcessPoolExecutor, as_completed
-    from multiprocessing import get_context
 
     from tqdm import tqdm
 
@@ -635,19 +736,13 @@ def build_grid(kappa, spec: GridSpec | None = None, *, workers: int | None = Non
         workers = 1
     t_wall = time.perf_counter()
     results = {}
+    runner = runner or local_tracks
+    jobs = [((i, j), (M, X0, Z, kappa, options, spec.n_phase)) for i, j, M, X0, Z in tasks]
     bar = tqdm(total=len(tasks), disable=not progress, desc="tracks", unit="track")
     try:
-        if workers == 1 or len(tasks) == 1:
-            for i, j, M, X0, Z in tasks:
-                results[i, j] = _one_track(M, X0, Z, kappa, options, spec.n_phase)
-                bar.update()
-        else:
-            with ProcessPoolExecutor(max_workers=min(workers, len(tasks)), mp_context=get_context("spawn")) as pool:
-                futures = {pool.submit(_one_track, M, X0, Z, kappa, options, spec.n_phase): (i, j)
-                           for i, j, M, X0, Z in tasks}
-                for fut in as_completed(futures):
-                    results[futures[fut]] = fut.result()
-                    bar.update()
+        for key, track in runner(_one_track, jobs, workers):
+            results[key] = track
+            bar.update()
     finally:
         bar.close()
     wall = time.perf_counter() - t_wall
@@ -686,7 +781,7 @@ def _assemble(spec, kappa, results, key_extra, wall, workers) -> TrackGrid:
 
 
 def cached_grid(kappa, spec: GridSpec | None = None, *, build: bool = True, workers: int | None = None,
-                progress: bool = True, key_extra: str = "") -> TrackGrid | None:
+                progress: bool = True, key_extra: str = "", runner=None) -> TrackGrid | None:
     """The grid for this opacity and spec from the cache folder, built and saved first if missing.
 
     Parameters
@@ -699,19 +794,22 @@ def cached_grid(kappa, spec: GridSpec | None = None, *, build: bool = True, work
     Returns
     -------
     TrackGrid or None
-        A file that cannot be read counts as missing.  A cache folder that
-        cannot be written only costs building again next time.
+        The package's shipped grid (:data:`SHIPPED_DIR`) when its key matches,
+        else the cache folder's.  A file that cannot be read counts as missing.
+        A cache folder that cannot be written only costs building again next time.
     """
     spec = spec or GridSpec()
-    path = grid_path(grid_key(kappa, spec, key_extra))
-    if path.is_file():
-        try:
-            return TrackGrid.load(path)
-        except (OSError, ValueError, KeyError, ConfigError):
-            pass
+    key = grid_key(kappa, spec, key_extra)
+    path = grid_path(key)
+    for candidate in (shipped_path(key), path):
+        if candidate.is_file():
+            try:
+                return TrackGrid.load(candidate)
+            except (OSError, ValueError, KeyError, ConfigError):
+                pass
     if not build:
         return None
-    grid = build_grid(kappa, spec, workers=workers, progress=progress, key_extra=key_extra)
+    grid = build_grid(kappa, spec, workers=workers, progress=progress, key_extra=key_extra, runner=runner)
     try:
         grid.save(path)
     except OSError:
@@ -720,10 +818,12 @@ def cached_grid(kappa, spec: GridSpec | None = None, *, build: bool = True, work
 
 
 def list_grids(folder=None) -> list[dict]:
-    """Headers of the grid files in the cache folder (each with its ``path`` and ``size_bytes``), newest first."""
-    folder = Path(folder) if folder is not None else cache_dir()
+    """Headers of the grid files in the cache folder and the shipped ones (each with ``path``, ``size_bytes``,
+    ``shipped``), newest first; ``folder`` lists that folder only."""
+    folders = [Path(folder)] if folder is not None else [cache_dir(), SHIPPED_DIR]
+    paths = [p for f in folders for p in f.glob(f"{_PREFIX}*.npz")]
     out = []
-    for path in sorted(folder.glob(f"{_PREFIX}*.npz"), key=lambda p: p.stat().st_mtime, reverse=True):
+    for path in sorted(paths, key=lambda p: p.stat().st_mtime, reverse=True):
         try:
             with np.load(path, allow_pickle=False) as f:
                 header = json.loads(str(f["header"]))
@@ -731,6 +831,7 @@ def list_grids(folder=None) -> list[dict]:
             header = {"unreadable": True}
         header["path"] = str(path)
         header["size_bytes"] = path.stat().st_size
+        header["shipped"] = path.parent == SHIPPED_DIR
         out.append(header)
     return out
 
@@ -821,3 +922,78 @@ def describe(header: dict) -> str:
     return "\n".join(lines)
 
 
+
+
+# ---------------------------------------------------------------------------- a catalog's part of the grid
+MASS_LUMINOSITY_POWER = 3.5
+"""L ~ M^3.5 on the main sequence (common practice, no source): only to pick which tracks a catalog needs."""
+
+LUMINOSITY_SLACK = 3.0
+"""Factor on either side of a catalog's luminosities: a star brightens ~2x over its main-sequence life at
+1 M_sun and the power law is rough; two extra nodes on each side are kept on top (:meth:`GridSpec.restricted`)."""
+
+
+def metallicity_from_feh(feh, spec: GridSpec | None = None, solar_z_over_x: float = const.Z_SUN / const.X_SUN):
+    """Z of a star with [Fe/H] under the spec's composition rule (scaled-solar: [Fe/H] = [Z/X]).
+
+    Parameters
+    ----------
+    feh : float or ndarray, dex
+    spec : GridSpec, optional
+        Its composition rule (Y = Y_p + dY/dZ Z, or a fixed X).
+    solar_z_over_x : float
+        (Z/X) of the Sun (default: radwalk's reference composition).
+
+    Returns
+    -------
+    float or ndarray
+    """
+    spec = spec or GridSpec(mass_nodes=(1.0,), z_nodes=(Z_SUN_NODE,))
+    zx = solar_z_over_x * 10.0 ** np.asarray(feh, dtype=float)
+    if spec.X is not None:
+        return zx * spec.X
+    # X = 1 - Y_p - (1 + dY/dZ) Z and Z = zx X  =>  Z = zx (1 - Y_p) / (1 + zx (1 + dY/dZ))
+    return zx * (1.0 - PRIMORDIAL_HELIUM) / (1.0 + zx * (1.0 + HELIUM_PER_METALS))
+
+
+Z_SUN_NODE = 0.017  # a node of the default Z axis, for a throw-away spec that only carries the composition rule
+
+
+def catalog_ranges(luminosity_lsun, feh=None, spec: GridSpec | None = None) -> tuple:
+    """Mass and metallicity ranges a catalog's main-sequence stars can need.
+
+    Parameters
+    ----------
+    luminosity_lsun : array_like [n], L_sun
+        Measured luminosities (NaN ignored).
+    feh : array_like [n, 2] or None, dex
+        [Fe/H] and its error per star (rows of NaN ignored); None, or no
+        finite row: the whole Z axis.
+    spec : GridSpec, optional
+        The grid to cut (default: the default grid), for its composition rule and nodes.
+
+    Returns
+    -------
+    mass_range : (float, float), M_sun
+        (L_min / 3)^(1/3.5) .. (3 L_max)^(1/3.5), clipped to the grid.
+    z_range : (float, float) or None
+        Z of [Fe/H] -+ 3 sigma over the stars, or None for the whole axis.
+    """
+    spec = spec or GridSpec()
+    L = np.asarray(luminosity_lsun, dtype=float)
+    L = L[np.isfinite(L) & (L > 0)]
+    if L.size == 0:
+        raise ConfigError("no star of the catalog has a luminosity: the mass range of its grid cannot be chosen")
+    lo = (L.min() / LUMINOSITY_SLACK) ** (1.0 / MASS_LUMINOSITY_POWER)
+    hi = (L.max() * LUMINOSITY_SLACK) ** (1.0 / MASS_LUMINOSITY_POWER)
+    m = spec.masses()
+    mass_range = (float(np.clip(lo, m[0], m[-1])), float(np.clip(hi, m[0], m[-1])))
+    z_range = None
+    if feh is not None:
+        f = np.asarray(feh, dtype=float).reshape(-1, 2)
+        f = f[np.all(np.isfinite(f), axis=1)]
+        if f.size:
+            zs = metallicity_from_feh(np.array([(f[:, 0] - 3 * f[:, 1]).min(), (f[:, 0] + 3 * f[:, 1]).max()]), spec)
+            z = spec.metallicities()
+            z_range = (float(np.clip(zs[0], z[0], z[-1])), float(np.clip(zs[1], z[0], z[-1])))
+    return mass_range, z_range

@@ -219,3 +219,48 @@ def make_executor(kind: str, workers: int, scheduler: str | None, config: RunCon
     if kind == "dask":
         return _DaskExecutor(workers, scheduler, config, hashes)
     raise ConfigError(f"unknown executor {kind!r}; choose local or dask")
+
+
+def dask_tracks(scheduler: str | None = None):
+    """A track runner for :func:`radwalk.forward.model_grid.build_grid` on a Dask cluster.
+
+    Parameters
+    ----------
+    scheduler : str, optional
+        Address of a running scheduler; None starts a LocalCluster on
+        127.0.0.1 with ``workers`` processes (:func:`local_cluster`) for the
+        build and closes it afterwards.
+
+    Returns
+    -------
+    callable
+        ``runner(fn, tasks, workers)`` yielding ``(key, fn(*args))`` as tracks
+        finish.  The opacity law travels to the workers by pickle, so it must
+        be importable there (a module-level function or a bound law).
+    """
+
+    def runner(fn, tasks, workers):
+        from distributed import Client, as_completed
+
+        cluster = None
+        try:
+            if scheduler:
+                try:
+                    client = Client(scheduler, timeout=f"{DASK_CONNECT_TIMEOUT_S}s")
+                except (OSError, TimeoutError, ValueError, TypeError) as exc:
+                    raise ConfigError(f"no Dask scheduler answered at {scheduler} within {DASK_CONNECT_TIMEOUT_S} s "
+                                      f"({type(exc).__name__}: {' '.join(str(exc).split())[:200]})") from None
+            else:
+                cluster = local_cluster(max(1, int(workers)))
+                client = Client(cluster)
+            try:
+                futures = {client.submit(fn, *args, pure=False): key for key, args in tasks}
+                for fut in as_completed(futures):
+                    yield futures[fut], fut.result()
+            finally:
+                client.close()
+        finally:
+            if cluster is not None:
+                cluster.close()
+
+    return runner

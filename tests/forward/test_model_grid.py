@@ -15,6 +15,7 @@ import numpy as np
 import pytest
 
 from radwalk import constants as const
+from radwalk.errors import ConfigError
 from radwalk.forward import model_grid as mg
 from radwalk.physics.opacity import default_kappa
 from radwalk.physics.structure.calibration import CALIBRATED_Y0, composition_from_helium
@@ -222,3 +223,75 @@ def test_interpolation_accuracy_over_0_8_to_5_msun():
     worst = _largest_errors(1)
     for name, target in TARGETS.items():
         assert worst[name] < target, (name, worst[name])
+
+
+# ---------------------------------------------------------------------------- default nodes, cuts, runners
+def test_default_grid_covers_the_asked_ranges():
+    spec = mg.GridSpec()
+    # The issue asks for at least 0.6-8 M_sun and Z 0.003-0.04, with >= 6 metallicities (the leave-one-out of
+    # a 3-value Z axis missed the targets).
+    assert spec.mass_range == (0.6, 8.0) and spec.z_range == (0.003, 0.04) and spec.n_z >= 6
+    steps = np.diff(np.log10(spec.masses()))
+    assert steps.max() < 0.07
+    # closer where convective cores appear
+    close = (spec.masses()[1:] > 0.9) & (spec.masses()[1:] <= 1.3)
+    assert steps[close].max() < 0.025
+
+
+def test_restricted_spec_keeps_the_stencil_nodes():
+    spec = mg.GridSpec()
+    cut = spec.restricted((1.02, 1.28), (0.012, 0.02))
+    m, z = spec.masses(), spec.metallicities()
+    # every node of the range plus two beyond each end, as the 4-point stencil needs
+    assert cut.masses().tolist() == m[(m >= 0.9) & (m <= 1.5)].tolist()
+    assert cut.metallicities().tolist() == z[(z >= 0.0046) & (z <= 0.04)].tolist()
+    assert cut.alpha_mlt == spec.alpha_mlt and cut.n_phase == spec.n_phase
+    with pytest.raises(ConfigError, match="outside the grid"):
+        spec.restricted((20.0, 30.0))
+
+
+def test_catalog_ranges_follow_luminosity_and_metallicity():
+    (m_lo, m_hi), (z_lo, z_hi) = mg.catalog_ranges([0.8, 3.0, np.nan], [[0.0, 0.05], [np.nan, np.nan], [0.1, 0.05]])
+    assert m_lo == pytest.approx((0.8 / 3.0) ** (1 / 3.5)) and m_hi == pytest.approx(9.0 ** (1 / 3.5))
+    # [Fe/H] = 0 gives the reference (Z/X) of the Sun under the composition rule
+    z0 = mg.metallicity_from_feh(0.0)
+    assert z0 / mg.GridSpec().hydrogen(z0) == pytest.approx(const.Z_SUN / const.X_SUN, rel=1e-12)
+    assert z_lo == pytest.approx(mg.metallicity_from_feh(-0.15))
+    assert z_hi == pytest.approx(mg.metallicity_from_feh(0.25))
+    assert mg.catalog_ranges([1.0])[1] is None
+    with pytest.raises(ConfigError, match="no star"):
+        mg.catalog_ranges([np.nan])
+
+
+def test_grid_build_for_a_catalog_prints_the_cut(tmp_path, capsys):
+    from radwalk.cli.main import main
+
+    cat = tmp_path / "two.csv"
+    cat.write_text("id,radius,radius_err,luminosity,luminosity_err,teff,teff_err,feh,feh_err\n"
+                   "a,1.0,0.02,1.0,0.05,5770,60,0.0,0.05\nb,1.3,0.03,2.5,0.1,6300,70,0.05,0.05\n")
+    assert main(["grid", "build", "--for-catalog", str(cat), "--opacity", "kramers", "--dry-run"]) == 0
+    out = capsys.readouterr().out
+    assert "2 stars need 19 of 30 masses (0.6-2.2 M_sun)" in out, out
+
+
+def test_shipped_grid_is_found_before_building(tiny, tmp_path, monkeypatch):
+    folder = tmp_path / "shipped"
+    monkeypatch.setattr(mg, "SHIPPED_DIR", folder)
+    tiny.save(mg.shipped_path(mg.grid_key(default_kappa, TINY)))
+    monkeypatch.setenv("RADWALK_CACHE", str(tmp_path / "empty-cache"))
+    found = mg.cached_grid(default_kappa, TINY, build=False)
+    assert found is not None
+    np.testing.assert_array_equal(found.table, tiny.table)
+    assert [h["shipped"] for h in mg.list_grids()] == [True]
+
+
+@pytest.mark.dask
+def test_dask_cluster_builds_the_same_tracks(tmp_path, monkeypatch):
+    from radwalk.run.executors import dask_tracks
+
+    monkeypatch.setenv("RADWALK_CACHE", str(tmp_path))
+    one = mg.GridSpec(mass_nodes=(2.0, 3.0), z_nodes=(0.014,), n_phase=11, dXc=0.05)
+    local = mg.build_grid(default_kappa, one, workers=1, progress=False)
+    remote = mg.build_grid(default_kappa, one, workers=2, progress=False, runner=dask_tracks(None))
+    assert remote.key == local.key
+    np.testing.assert_array_equal(remote.table, local.table)
