@@ -8,7 +8,7 @@ EXAMPLE := $(VENV)/.example-plugin
 
 export MPLBACKEND := Agg
 
-.PHONY: demo test test-all lint bench clean
+.PHONY: demo test test-all lint bench clean grid
 
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PY) -m venv $(VENV)
@@ -40,3 +40,13 @@ bench: $(STAMP)
 
 clean:
 	rm -rf $(VENV) build *.egg-info radwalk-demo
+
+# The shipped grid of the default stages (~10 minutes on 2 cores). Re-run after any change to the solver or
+# the default opacity (tests/forward/test_shipped_grid.py says so); the old file is replaced.
+grid: $(STAMP)
+	rm -rf .grid-new
+	$(BIN)/radwalk grid build --into .grid-new
+	mkdir -p pipeline/data/grids
+	rm -f pipeline/data/grids/trackgrid-*.npz
+	mv .grid-new/trackgrid-*.npz pipeline/data/grids/
+	rm -rf .grid-new

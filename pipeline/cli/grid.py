@@ -33,6 +33,9 @@ def add_grid_parser(sub, common):
                    help="where the tracks are computed: a local process pool or a Dask cluster (default local)")
     b.add_argument("--scheduler", default=None,
                    help="address of a running Dask scheduler (with --executor dask; default: a local cluster)")
+    b.add_argument("--into", metavar="FOLDER", default=None,
+                   help="write the grid file into this folder instead of the cache folder (the package's own "
+                        "data/grids folder is where the shipped grid lives)")
     b.add_argument("--dry-run", action="store_true", help="print the estimated cost and stop")
     b.add_argument("--no-progress", action="store_true", help="no progress bar")
     b.set_defaults(func=cmd_grid_build)
@@ -49,18 +52,17 @@ def add_grid_parser(sub, common):
 
 
 def _opacity(args):
-    """The opacity callable: the solver's built-in law, or a named law (with --plugin files) at its defaults."""
-    if not args.opacity:
-        from radwalk.physics.opacity import default_kappa
+    """The opacity stage bound at its defaults: the default stages' law, or a named law (with --plugin files).
 
-        return default_kappa
+    The default is the law a fit uses by default, so that the grid built here is the one fits look up.
+    """
     from pathlib import Path
 
     from radwalk.host.config import RunConfig
     from radwalk.inference.fit import stages_for
 
     plugins = tuple(str(Path(p).expanduser().resolve()) for p in args.plugin)
-    stages = stages_for(RunConfig(stages={"opacity": args.opacity}, plugins=plugins))
+    stages = stages_for(RunConfig(stages={"opacity": args.opacity} if args.opacity else {}, plugins=plugins))
     return stages.bound_opacity(stages.defaults())
 
 
@@ -84,16 +86,18 @@ def _for_catalog(spec, path):
 
 def cmd_grid_build(args):
     import os
+    from pathlib import Path
 
     from radwalk.forward.model_grid import (
         DEFAULT_MASS_NODES,
         DEFAULT_Z_NODES,
         GridSpec,
-        cached_grid,
+        build_grid,
         describe,
         estimate_cpu_seconds,
         grid_key,
         grid_path,
+        shipped_path,
     )
 
     # A count alone spreads that many tracks over the default grid's range.
@@ -107,13 +111,15 @@ def cmd_grid_build(args):
     if args.scheduler and args.executor != "dask":
         raise ConfigError("--scheduler needs --executor dask")
     kappa = _opacity(args)
-    path = grid_path(grid_key(kappa, spec))
+    key = grid_key(kappa, spec)
+    path = Path(args.into).expanduser() / grid_path(key).name if args.into else grid_path(key)
     workers = args.workers or os.cpu_count() or 1
     cpu = estimate_cpu_seconds(spec)
     tracks = spec.n_mass * spec.n_z
-    if path.is_file():
-        print(f"grid exists: {path}")
-        return 0
+    for existing in (path, shipped_path(key)):
+        if existing.is_file():
+            print(f"grid exists: {existing}")
+            return 0
     print(f"{tracks} tracks, estimated {cpu / 60:.1f} CPU minutes, about {cpu / 60 / min(workers, tracks):.1f} "
           f"minutes on {min(workers, tracks)} workers (rough: ~{cpu / tracks:.0f} s per track)")
     if args.dry_run:
@@ -123,12 +129,17 @@ def cmd_grid_build(args):
         from radwalk.run.executors import dask_tracks
 
         runner = dask_tracks(args.scheduler)
-    grid = cached_grid(kappa, spec, workers=workers, progress=not args.no_progress, runner=runner)
+    grid = build_grid(kappa, spec, workers=workers, progress=not args.no_progress, runner=runner)
+    try:
+        grid.save(path)
+    except OSError as exc:
+        print(f"warning: {path} could not be written ({exc.strerror or exc})")
     header = dict(grid.header, path=str(path), size_bytes=path.stat().st_size if path.is_file() else 0)
     print(describe(header))
     for f in grid.header["build"]["failed"]:
         print(f"  failed: {f['mass_msun']:.4g} M_sun, Z = {f['Z']:.4g}: {f['reason']}")
-    print(f"written: {path}" if path.is_file() else "warning: the cache folder could not be written")
+    if path.is_file():
+        print(f"written: {path}")
     return 0
 
 

@@ -102,6 +102,8 @@ about 0.05 dex apart above."""
 DEFAULT_Z_NODES = (0.003, 0.0046, 0.0071, 0.011, 0.017, 0.026, 0.04)
 """Metallicities of the default grid: 0.003-0.04 (about [Fe/H] -0.7 to +0.45), 0.19 dex apart."""
 
+_NUMERIC_MODULES = ("radwalk.physics", "radwalk.constants", "radwalk.plugins")
+
 _PREFIX = "trackgrid-"
 _SOURCE_ROOT = "radwalk.physics.structure.tracks"  # the modules it imports, transitively, compute the tracks
 
@@ -303,12 +305,14 @@ def solver_sources(root: str = _SOURCE_ROOT) -> dict:
     root : str
         The module whose radwalk imports are followed, transitively (lazy
         imports inside functions included); package ``__init__`` files, which
-        only re-export, are left out.
+        only re-export, are neither hashed nor followed.
 
     Returns
     -------
     dict of str -> str
-        Module name -> hex digest, sorted by name.
+        Module name -> hex digest, sorted by name, of the modules that compute
+        numbers (:data:`_NUMERIC_MODULES`): the host's interfaces and errors
+        are followed but not hashed, so editing them does not invalidate grids.
     """
     seen, todo = {}, [root]
     while todo:
@@ -323,10 +327,14 @@ def solver_sources(root: str = _SOURCE_ROOT) -> dict:
             seen[name] = None
             continue
         path = Path(spec.origin)
-        is_package = path.name == "__init__.py"
-        seen[name] = None if is_package else _sha(path)
-        todo.extend(_imported_names(path, name, is_package) - set(seen))
-    return {k: v for k, v in sorted(seen.items()) if v is not None}
+        if path.name == "__init__.py":
+            # A package's __init__ only re-exports; following it would pull in the whole program (the top
+            # package imports the API, the report, ...) and any edit anywhere would change every grid's key.
+            seen[name] = None
+            continue
+        seen[name] = _sha(path)
+        todo.extend(_imported_names(path, name, False) - set(seen))
+    return {k: v for k, v in sorted(seen.items()) if v is not None and k.startswith(_NUMERIC_MODULES)}
 
 
 def opacity_identity(kappa) -> dict:
@@ -352,6 +360,9 @@ def opacity_identity(kappa) -> dict:
     out = {"module": getattr(module, "__name__", None), "name": getattr(obj, "__qualname__", repr(obj))}
     path = getattr(module, "__file__", None)
     out["source_sha256"] = _sha(path) if path and Path(path).is_file() else None
+    if out["module"] and out["module"].startswith("radwalk."):
+        # a built-in law is a thin adapter: its physics lives in the modules it imports
+        out["imports_sha256"] = solver_sources(out["module"])
     if law is not None:
         out["law"] = getattr(law, "name", None)
         out["params"] = {k: float(np.asarray(v, dtype=float).ravel()[0]) for k, v in sorted((params or {}).items())}
@@ -920,8 +931,6 @@ def describe(header: dict) -> str:
         f"{build.get('wall_seconds', math.nan):.0f} s wall; {len(build.get('failed', []))} failed tracks",
     ]
     return "\n".join(lines)
-
-
 
 
 # ---------------------------------------------------------------------------- a catalog's part of the grid
