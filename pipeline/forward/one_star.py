@@ -76,6 +76,9 @@ def model_star(stages: StageSet, mass: float, X: float, Z: float, settings: dict
     for name, v in (settings or {}).items():
         values[name] = stages.param(name).check(v)
     values.update(mass=np.array([mass]), X=np.array([X]), Z=np.array([Z]))
+    outside = stages.outside_support(values)
+    if outside:  # e.g. an age past the end of this star's main sequence
+        raise ModelError("; ".join(outside))
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always", ValidityWarning)
         pred = stages.predict(values, use_grid=False)  # one star: solve exactly, no grid to build

@@ -171,6 +171,87 @@ class StageSet:
                                   self.options.get(self.opacity.name, {}))
         return cache[key]
 
+    # -- support of the prior and quantities without a profile -----------
+    def _component_call(self, stage: str, method, values: dict):
+        """``method(M, X, Z, **params)`` of a stage's component, with ``opacity=`` when it takes it."""
+        import inspect
+
+        M = np.atleast_1d(np.asarray(values["mass"], dtype=float)) * k.M_SUN
+        n = M.size
+        X = np.broadcast_to(np.asarray(values["X"], dtype=float), (n,))
+        Z = np.broadcast_to(np.asarray(values["Z"], dtype=float), (n,))
+        kwargs = self.stage_kwargs(stage, values)
+        try:
+            takes_opacity = "opacity" in inspect.signature(method).parameters
+        except (TypeError, ValueError):
+            takes_opacity = False
+        if takes_opacity:
+            kwargs["opacity"] = self.bound_opacity(values)
+        return method(M, X, Z, **kwargs)
+
+    def support_stages(self) -> list[str]:
+        """The stages whose component declares a support (an optional ``support`` method)."""
+        return [s for s in STAGES if callable(getattr(getattr(self, s), "support", None))]
+
+    def support(self, values: dict) -> np.ndarray:
+        """Where every component's declared support holds, bool [n] (everywhere when none declares one).
+
+        A component may declare ``support(M, X, Z, **params) -> bool [n]`` (M in g, its own parameters by
+        name, and ``opacity=`` the bound opacity stage if the method takes that keyword): the joint region of
+        the star's and its parameters' values where its model exists and its prior is non-zero, such as an
+        age no greater than the main-sequence lifetime of the mass.  The posterior is -inf outside it and
+        prior draws are kept inside it (:mod:`radwalk.inference.posterior`).
+        """
+        n = np.atleast_1d(np.asarray(values["mass"], dtype=float)).size
+        ok = np.ones(n, dtype=bool)
+        for stage in self.support_stages():
+            with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+                inside = self._component_call(stage, getattr(self, stage).support, values)
+            ok &= np.broadcast_to(np.asarray(inside, dtype=bool), (n,))
+        return ok
+
+    def outside_support(self, values: dict) -> list[str]:
+        """Plain-language reasons why the first sample lies outside a component's support (empty: inside).
+
+        A component explains itself with an optional ``support_note(M, X, Z, **params) -> str`` (same
+        arguments as ``support``); otherwise the message names the component and the parameter values.
+        Two components that give the same reason (a profile and a relation on one grid) give it once.
+        """
+        first = {name: (np.atleast_1d(v)[:1] if np.ndim(v) else v) for name, v in values.items()}
+        out = []
+        for stage in self.support_stages():
+            comp = getattr(self, stage)
+            with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+                inside = np.asarray(self._component_call(stage, comp.support, first), dtype=bool).reshape(-1)
+            if inside[0]:
+                continue
+            note = getattr(comp, "support_note", None)
+            if callable(note):
+                out.append(str(self._component_call(stage, note, first)))
+            else:
+                given = ", ".join(f"{p.name} = {float(np.atleast_1d(first[p.name])[0]):g} {p.unit}".rstrip()
+                                  for p in comp.params)
+                out.append(f"{stage} {comp.name!r} has no model for mass = "
+                           f"{float(np.atleast_1d(first['mass'])[0]):g} M_sun, X = "
+                           f"{float(np.atleast_1d(first['X'])[0]):g}, Z = {float(np.atleast_1d(first['Z'])[0]):g}"
+                           + (f", {given}" if given else ""))
+        return list(dict.fromkeys(out))
+
+    def quick_quantities(self, values: dict) -> dict | None:
+        """The profile model's quantities without a radial structure, name -> [n], or None if it has none.
+
+        A profile model may provide ``quantities(M, X, Z, **params) -> dict`` (M in g; ``opacity=`` if it
+        takes it): scalar quantities of the catalogue (:mod:`radwalk.forward.quantities`), in their computed
+        units, for every sample at little cost (read off a precomputed grid, say).  It then also states
+        ``band_samples``, how many samples' radial structures it needs solved for the profile bands.
+        """
+        fn = getattr(self.profile, "quantities", None)
+        if not callable(fn):
+            return None
+        out = self._component_call("profile", fn, values)
+        n = np.atleast_1d(np.asarray(values["mass"], dtype=float)).size
+        return {name: np.broadcast_to(np.asarray(v, dtype=float), (n,)).copy() for name, v in out.items()}
+
     def structure(self, values: dict, R, L) -> tuple[Profile, transport.Transport]:
         """Interior profile and transport quantities of stars with the given R (cm) and L (erg/s)."""
         M = np.atleast_1d(np.asarray(values["mass"], dtype=float)) * k.M_SUN

@@ -101,7 +101,38 @@ class Profile:
 
 @runtime_checkable
 class Component(Protocol):
-    """What every component declares."""
+    """What every component declares.
+
+    Optional, for any stage
+    -----------------------
+    ``support(M, X, Z, **params) -> ndarray of bool [n]``
+        The joint support of the component: where its model exists and its
+        prior is non-zero, for M [n] in g, X, Z [n] and its own parameters
+        by name ([n] or scalars), with ``opacity=`` the bound opacity stage
+        when the method takes that keyword.  Use it for a limit that ties
+        several values together, which a one-parameter Prior cannot express
+        (an age no greater than the main-sequence lifetime of the mass).
+        The posterior is -inf where it is False and prior draws are redrawn
+        there (:meth:`radwalk.forward.stages.StageSet.support`); it must hold
+        at the parameters' defaults (contract check ``support``).
+    ``support_note(M, X, Z, **params) -> str``
+        Why the first sample lies outside the support, in words (for
+        ``radwalk model``'s refusal); a generic message otherwise.
+
+    Optional, for profiles
+    ----------------------
+    ``quantities(M, X, Z, **params) -> dict`` and ``band_samples: int``
+        Scalars of the quantity catalogue in their computed units, [n], for
+        every sample at little cost (read off a grid); a fit then solves the
+        radial structure for ``band_samples`` evenly spaced samples only, for
+        the profile bands (:func:`radwalk.inference.derived.derive`).
+
+    Optional, for relations
+    -----------------------
+    ``unreachable_note(observed, opacity=..., Z=(lo, hi)) -> str | None``
+        Why no star of the relation matches the observations (beyond the end
+        of the main sequence, say), added to a fit's refusal.
+    """
 
     name: str
     description: str

@@ -14,6 +14,16 @@ they carry ``name``, ``description``, ``params`` (tuple of
 :class:`radwalk.host.params.Param`) and ``validity``
 (:class:`radwalk.host.params.Validity`).  Arrays are numpy floats in cgs units
 with a leading sample axis ``n``.
+
+Any component may also declare a joint support, ``support(M, X, Z, **params)
+-> bool [n]`` (M in g; its own parameters; ``opacity=`` when it takes that
+keyword): the region of the star's and its parameters' values where its model
+exists and its prior is non-zero, such as an age no greater than the
+main-sequence lifetime of the mass.  The posterior is -inf outside it, prior
+draws stay inside it, and ``radwalk check-plugin`` checks it (bool [n], True
+at the default parameters).  The other optional methods (a profile's
+``quantities`` and ``band_samples``, a relation's ``unreachable_note``) are
+described in :class:`radwalk.host.components.Component`.
 """
 
 import pluggy

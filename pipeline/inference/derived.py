@@ -20,7 +20,13 @@ from radwalk.results.products import BAND_FIELDS, BAND_PERCENTILES
 
 
 def check_reachable(post: Posterior, theta_map):
-    """Raises ModelError when the best model is still far from a measured observable."""
+    """Raises ModelError when the best model is still far from a measured observable.
+
+    A relation that can say why no star of it matches (an optional method
+    ``unreachable_note(observed, opacity=..., Z=(lo, hi)) -> str | None``,
+    given the observations, the bound opacity and the metallicities the
+    priors allow) has its words added to the refusal.
+    """
     pred = post.predict(theta_map[None, :])
     obs = post.observed
     for key in obs.present():
@@ -29,10 +35,26 @@ def check_reachable(post: Posterior, theta_map):
         if not np.isfinite(p) or abs(p - v) / e > NO_REACH_SIGMA and abs(p - v) / v > 0.1:
             q = quantity(key)
             best = "none" if not np.isfinite(p) else f"{q.to_output(p):.4g} {q.output_unit}"
+            note = _unreachable_note(post, theta_map)
             raise ModelError(
-                f"no model within the priors reaches {q.plain} = {q.to_output(v):.4g} {q.output_unit} "
-                f"(closest: {best}, with relation {post.stages.relation.name!r})"
+                f"{note} (relation {post.stages.relation.name!r}; closest model: {q.plain} = {best})" if note else
+                 f"no model within the priors reaches {q.plain} = {q.to_output(v):.4g} {q.output_unit} "
+                 f"(closest: {best}, with relation {post.stages.relation.name!r})"
             )
+
+
+def _unreachable_note(post: Posterior, theta_map) -> str | None:
+    """The relation's own words on why the observations lie outside its stars, or None."""
+    note = getattr(post.stages.relation, "unreachable_note", None)
+    if not callable(note):
+        return None
+    if "Z" in post.fixed:
+        z_range = (float(post.fixed["Z"]), float(post.fixed["Z"]))
+    else:
+        prior = post.priors[post.names.index("Z")]
+        z_range = (prior.lower, prior.upper)
+    values = post.values(theta_map[None, :])
+    return note(post.observed, opacity=post.stages.bound_opacity(values), Z=z_range)
 
 
 def derive(post: Posterior, samples: np.ndarray):
@@ -48,8 +70,13 @@ def derive(post: Posterior, samples: np.ndarray):
     -------
     derived : dict
         name -> [n] in output units, over the n samples that gave a model star.
+        With a profile model that has quantities of its own
+        (:meth:`radwalk.forward.stages.StageSet.quick_quantities`) these are its
+        quantities; plugin quantities, which need the radial structure, are then
+        given on the band samples only (NaN elsewhere).
     bands : dict
-        field -> [5, g], the :data:`radwalk.results.products.BAND_PERCENTILES` of each profile field.
+        field -> [5, g], the :data:`radwalk.results.products.BAND_PERCENTILES` of each profile field
+        (over the band samples only, :func:`band_rows`, for such a profile model).
     r_rel : ndarray [g]
         The profile's grid in r/R.
     notes : list of str
@@ -63,19 +90,42 @@ def derive(post: Posterior, samples: np.ndarray):
         pred = post.stages.predict(vals)
         ok = np.isfinite(pred["radius"]) & np.isfinite(pred["luminosity"])
         vals_ok = {kk: (v[ok] if np.ndim(v) else v) for kk, v in vals.items()}
-        prof, tr = post.stages.structure(vals_ok, pred["radius"][ok], pred["luminosity"][ok])
+        n_ok = int(ok.sum())
+        quick = post.stages.quick_quantities(vals_ok) if n_ok else None
+        # A profile model with quantities of its own (read off a grid) gives them for every sample; its radial
+        # structures, slow to solve, are solved only for the evenly spaced few the bands need.
+        rows = np.arange(n_ok) if quick is None else band_rows(n_ok, post.stages.profile)
+        vals_band = vals_ok if quick is None else {kk: (v[rows] if np.ndim(v) else v) for kk, v in vals_ok.items()}
+        prof, tr = post.stages.structure(vals_band, pred["radius"][ok][rows], pred["luminosity"][ok][rows])
     notes = [str(w.message) for w in caught]
     notes += post.stages.validity_messages(vals_ok, prof)
     derived = {}
     for key in ("radius", "luminosity", "teff"):
         derived[key] = pred[key][ok] * quantity(key).factor
-    derived["mu"] = np.broadcast_to(mu(vals_ok["X"], vals_ok["Z"]), (int(ok.sum()),)).copy()
-    for key, v in tr.scalars.items():
+    derived["mu"] = np.broadcast_to(mu(vals_ok["X"], vals_ok["Z"]), (n_ok,)).copy()
+    for key, v in (tr.scalars if quick is None else quick).items():
         derived[key] = v * (CATALOGUE[key].factor if key in CATALOGUE else 1.0)
-    derived.update(plugin_quantities(post.stages, prof, vals_ok, tr, set(derived)))
+    for key, v in plugin_quantities(post.stages, prof, vals_band, tr, set(derived)).items():
+        derived[key] = v if quick is None else _spread(v, rows, n_ok)
     fields = {"rho": prof.rho, "T": prof.T, **tr.fields}
     bands = {f: np.percentile(fields[f], BAND_PERCENTILES, axis=0) for f in BAND_FIELDS}
     return derived, bands, prof.r[0] / prof.R[0], notes, ok
+
+
+def band_rows(n: int, profile) -> np.ndarray:
+    """Indices of the samples whose radial structure is solved for the bands: ``profile.band_samples`` of
+    the ``n``, evenly spaced (the samples are a thinned chain, so evenly spaced rows are a fair draw)."""
+    k = max(1, int(getattr(profile, "band_samples", n)))
+    if n <= k:
+        return np.arange(n)
+    return np.linspace(0, n - 1, k).round().astype(int)
+
+
+def _spread(values, rows, n: int) -> np.ndarray:
+    """[len(rows)] values put at ``rows`` of an [n] array of NaN."""
+    out = np.full(n, np.nan)
+    out[rows] = values
+    return out
 
 
 def plugin_quantities(stages, profile, values, tr, taken: set) -> dict:

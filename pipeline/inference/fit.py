@@ -56,9 +56,10 @@ def stages_for(config: RunConfig, opacity: str | None = None) -> StageSet:
     probe = StageSet.build(reg, names)  # to learn which settings are options
     opts = {}
     for key, value in config.settings.items():
-        comp = probe.option_names().get(key)
-        if comp is not None:
-            opts.setdefault(comp.name, {})[key] = value
+        # every component that declares the option gets it (a profile and a relation may share a grid's options)
+        for comp in probe.components().values():
+            if key in {o.name for o in getattr(comp, "options", ())}:
+                opts.setdefault(comp.name, {})[key] = value
     stages = StageSet.build(reg, names, opts)
     law = stages.opacity.name
     check_opacity_contract(tuple(config.plugins), law, tuple(sorted(opts.get(law, {}).items())))
@@ -116,7 +117,7 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     chain = run_chain(post, config.sampler, chain_seed, chain_path=chain_path)
     check_reachable(post, chain.map_theta)
     flat, flat_lp = chain.flat()
-    indep = post.draw_independent(np.random.default_rng(prior_seed), flat.shape[0])
+    indep = post.draw_independent(np.random.default_rng(prior_seed), flat.shape[0], theta=flat)
     flat = np.column_stack([flat, indep])
     idx = _evenly(flat.shape[0], config.sampler.derived_samples)
     derived, bands, r_rel, notes, ok = derive(post, flat[idx])

@@ -2,7 +2,10 @@
 
 ``Posterior(theta[nwalkers, ndim]) -> [nwalkers]`` is vectorised over walkers
 (emcee's ``vectorize=True``), returns ``-inf`` outside the prior support or
-where the relation finds no star, and never NaN.
+where the relation finds no star, and never NaN.  The support is that of each
+parameter's prior together with the joint supports the components declare
+(:meth:`radwalk.forward.stages.StageSet.support`: an age no greater than the
+main-sequence lifetime of the mass, say); prior draws are kept inside it.
 """
 
 from __future__ import annotations
@@ -14,6 +17,10 @@ from radwalk.forward.stages import StageSet
 from radwalk.host.components import Observations
 from radwalk.host.config import RunConfig
 from radwalk.host.params import Prior
+
+# Batches of prior draws (each 4 times the number wanted) tried before giving up on filling a declared support:
+# enough for a support that holds 1/1000 of the prior.
+_SUPPORT_ROUNDS = 250
 
 
 class Posterior:
@@ -42,14 +49,23 @@ class Posterior:
         for name in list(numeric) + list(config.priors):
             if name not in declared:
                 stages.param(name)  # raises with a suggestion
+        # A likelihood's model-error settings describe the model, not the star: one star cannot measure them,
+        # so they are never sampled (a sampled error would only trade off against the star's parameters).
+        settings_only = set(getattr(stages.likelihood, "fixed_params", ()))
+        for name in config.priors:
+            if name in settings_only:
+                raise ConfigError(f"{name!r} of likelihood {stages.likelihood.name!r} is a fixed setting and "
+                                  "cannot be sampled; set its value under [settings] instead of giving a prior")
         self.fixed = {}
         self.names = []
         self.priors: list[Prior] = []
-        # Profile parameters never reach the likelihood (the relation predicts R and L without the
-        # profile), so their posterior is their prior: they are drawn from it directly after
-        # sampling instead of being random-walked by emcee, which only lengthens the chain.
+        # Parameters of the profile alone never reach the likelihood (the relation predicts R and L without
+        # the profile), so their posterior is their prior: they are drawn from it directly after sampling
+        # instead of being random-walked by emcee, which only lengthens the chain.  A parameter the profile
+        # shares with another stage (an age both the profile and the relation take) is sampled.
         self.independent: list[tuple] = []
-        profile_names = {p.name for p in stages.profile.params}
+        elsewhere = {p.name for s in ("opacity", "relation", "likelihood") for p in getattr(stages, s).params}
+        profile_names = {p.name for p in stages.profile.params} - elsewhere
         for p in stages.all_params():
             if p.name in numeric and p.name not in config.priors:
                 self.fixed[p.name] = p.check(numeric[p.name])
@@ -74,6 +90,7 @@ class Posterior:
         self._xz_may_exceed_one = top.get("X", 1.0) + top.get("Z", 1.0) > 1.0
         self.ndim = len(self.names)
         self._lik_names = [p.name for p in stages.likelihood.params]
+        self._has_support = bool(stages.support_stages())
 
     # -- parameter vectors ----------------------------------------------
     def values(self, theta) -> dict:
@@ -92,10 +109,24 @@ class Posterior:
             vals[p.name] = theta[:, j] if theta.shape[1] > j else p.default
         return vals
 
-    def draw_independent(self, rng: np.random.Generator, size: int) -> np.ndarray:
-        """Draws of the prior-only parameters, [size, n_independent]."""
+    def draw_independent(self, rng: np.random.Generator, size: int, theta=None) -> np.ndarray:
+        """Draws of the prior-only parameters, [size, n_independent].
+
+        With ``theta`` [size, ndim] (the sampled parameters they join), draws
+        that fall outside a component's declared support are drawn again.
+        """
         cols = [prior.sample(rng, size) for _, prior in self.independent]
-        return np.column_stack(cols) if cols else np.zeros((size, 0))
+        out = np.column_stack(cols) if cols else np.zeros((size, 0))
+        if theta is None or not cols or not self._has_support:
+            return out
+        theta = np.atleast_2d(theta)
+        for _ in range(_SUPPORT_ROUNDS):
+            bad = ~self.stages.support(self.values(np.column_stack([theta, out])))
+            if not bad.any():
+                return out
+            out[bad] = np.column_stack([prior.sample(rng, int(bad.sum())) for _, prior in self.independent])
+        raise ConfigError(f"the priors of {', '.join(p.name for p, _ in self.independent)} leave almost no room "
+                          f"inside the support of the stages: {int(bad.sum())} of {size} samples still outside")
 
     def log_prior(self, theta):
         theta = np.atleast_2d(theta)
@@ -110,6 +141,13 @@ class Posterior:
                 zx = np.log10(vals["Z"] / vals["X"]) - self.solar_log_zx
             lp = lp - 0.5 * ((zx - self.feh[0]) / self.feh[1]) ** 2
             lp = np.where(np.isfinite(lp), lp, -np.inf)
+        if self._has_support:
+            ok = np.isfinite(lp)
+            if ok.any():  # the components' joint supports, asked only where the priors allow the point
+                sub = vals if ok.all() else {kk: (v[ok] if np.ndim(v) else v) for kk, v in vals.items()}
+                inside = np.zeros_like(ok)
+                inside[ok] = self.stages.support(sub)
+                lp = np.where(inside, lp, -np.inf)
         return lp
 
     def predict(self, theta) -> dict:
@@ -138,9 +176,30 @@ class Posterior:
         return out
 
     def sample_prior(self, rng: np.random.Generator, size: int):
-        """Draws from the (independent) priors, keeping only points with a finite posterior."""
-        cols = [p.sample(rng, size) for p in self.priors]
-        return np.column_stack(cols) if cols else np.zeros((size, 0))
+        """Draws from the priors of the sampled parameters, [size, ndim], inside the components' supports.
+
+        Each parameter is drawn from its own prior; draws outside the joint
+        support (:meth:`radwalk.forward.stages.StageSet.support`) are thrown
+        away and more are drawn, so the draws follow the product of the priors
+        restricted to the support.
+        """
+        def draw(m):
+            cols = [p.sample(rng, m) for p in self.priors]
+            return np.column_stack(cols) if cols else np.zeros((m, 0))
+
+        if not self._has_support or not self.priors:
+            return draw(size)
+        kept, have = [], 0
+        for _ in range(_SUPPORT_ROUNDS):
+            batch = draw(4 * size + 64)
+            batch = batch[np.isfinite(self.log_prior(batch))]
+            kept.append(batch)
+            have += batch.shape[0]
+            if have >= size:
+                return np.concatenate(kept)[:size]
+        raise ConfigError(f"the priors of {', '.join(self.names)} leave almost no room inside the support of the "
+                          f"stages: {have} of {_SUPPORT_ROUNDS * (4 * size + 64)} draws inside; narrow the priors "
+                          "to the models' range")
 
     def prior_widths(self):
         """A scale per parameter: the standard deviation of its prior."""

@@ -135,7 +135,9 @@ def test_targets_component_module_and_lists(tmp_path, monkeypatch):
     assert ids == ["opacity:module-law:call", "opacity:kramers:call"]
     relation = Registry(entry_points=False).entries["relation"]["homology"]
     ids = [str(c) for c in contract_cases(relation)]
-    assert ids == [f"relation:homology:{c.name}" for c in CHECKS["relation"] if c.name not in ("configure", "options")]
+    # configure and options apply only with options, support only to a component that declares one
+    assert ids == [f"relation:homology:{c.name}" for c in CHECKS["relation"]
+                   if c.name not in ("configure", "options", "support")]
 
 
 def test_options_give_a_configure_case(tmp_path):

@@ -27,9 +27,11 @@ Opacity laws, on a grid of log rho x log T over the law's declared validity (:mo
     neighbours), ``speed`` (at most :data:`SLOW_LIMIT` s per million points).
 Profiles, for three masses over the stated range (:mod:`.profile`)
     ``call``, ``shape`` ([n, ngrid]), ``finite``, ``physical`` (r and m rise
-    to R and M; rho, P, T >= 0; 0 < beta <= 1), ``broadcasting``, ``warnings``.
+    to R and M; rho, P, T >= 0; 0 < beta <= 1), ``broadcasting``, ``warnings``,
+    ``support`` (only when it declares one, :mod:`.support`).
 Relations, with the default opacity law (:mod:`.relation`)
-    ``call``, ``shape`` (R and L [n]), ``finite`` (and positive), ``broadcasting``, ``warnings``.
+    ``call``, ``shape`` (R and L [n]), ``finite`` (and positive), ``broadcasting``, ``warnings``,
+    ``support`` (only when it declares one: a bool [n] that holds at the default parameters).
 Likelihoods, around the observed Sun (:mod:`.likelihood`)
     ``call``, ``shape`` ([n]), ``values`` (never NaN, highest at the
     observation), ``broadcasting``, ``warnings``.
@@ -76,6 +78,7 @@ from radwalk.host.contracts.profile import (
     check_profile_finite,
     check_profile_physical,
     check_profile_shape,
+    check_profile_support,
     check_profile_warnings,
 )
 from radwalk.host.contracts.relation import (
@@ -83,6 +86,7 @@ from radwalk.host.contracts.relation import (
     check_relation_call,
     check_relation_finite,
     check_relation_shape,
+    check_relation_support,
     check_relation_warnings,
 )
 from radwalk.host.contracts.subject import Check, Subject
@@ -99,9 +103,9 @@ __all__ = [
     "check_opacity_call", "check_opacity_shape", "check_opacity_finite", "check_opacity_positive",
     "check_opacity_broadcasting", "check_opacity_warnings", "check_opacity_smoothness", "check_opacity_speed",
     "check_profile_call", "check_profile_shape", "check_profile_finite", "check_profile_physical",
-    "check_profile_broadcasting", "check_profile_warnings",
+    "check_profile_broadcasting", "check_profile_warnings", "check_profile_support",
     "check_relation_call", "check_relation_shape", "check_relation_finite", "check_relation_broadcasting",
-    "check_relation_warnings",
+    "check_relation_warnings", "check_relation_support",
     "check_likelihood_call", "check_likelihood_shape", "check_likelihood_values", "check_likelihood_broadcasting",
     "check_likelihood_warnings",
     # limits and ranges

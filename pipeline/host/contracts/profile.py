@@ -17,6 +17,7 @@ from radwalk.host.components import Profile
 from radwalk.host.contracts.inputs import compositions, default_opacity, default_params, fmt_point, masses
 from radwalk.host.contracts.outcome import CheckRow
 from radwalk.host.contracts.subject import Check, Subject, broadcasting_row, loop_mismatch, warnings_row
+from radwalk.host.contracts.support import declares_support, support_row
 
 STAGE = "profile"
 FIELDS = ("r", "m", "rho", "P", "T", "beta")
@@ -177,6 +178,14 @@ def check_profile_warnings(subject) -> CheckRow | None:
     return warnings_row(s, "inside the validity range")
 
 
+def check_profile_support(subject) -> CheckRow | None:
+    """A declared ``support`` returns bool [n], holds at the default parameters and agrees one star at a time."""
+    s = Subject.of(subject)
+    if s.component is None:
+        return None
+    return support_row(s, _stars(s))
+
+
 # in report order
 CHECKS = (
     Check("call", check_profile_call),
@@ -185,4 +194,5 @@ CHECKS = (
     Check("physical", check_profile_physical),
     Check("broadcasting", check_profile_broadcasting),
     Check("warnings", check_profile_warnings),
+    Check("support", check_profile_support, applies=declares_support),
 )

@@ -12,6 +12,7 @@ from radwalk import constants as k
 from radwalk.host.contracts.inputs import compositions, default_opacity, default_params, fmt_point, masses
 from radwalk.host.contracts.outcome import CheckRow
 from radwalk.host.contracts.subject import Check, Subject, broadcasting_row, loop_mismatch, warnings_row
+from radwalk.host.contracts.support import declares_support, support_row
 
 STAGE = "relation"
 
@@ -135,6 +136,14 @@ def check_relation_warnings(subject) -> CheckRow | None:
     return warnings_row(s, "inside the validity range")
 
 
+def check_relation_support(subject) -> CheckRow | None:
+    """A declared ``support`` returns bool [n], holds at the default parameters and agrees one star at a time."""
+    s = Subject.of(subject)
+    if s.component is None:
+        return None
+    return support_row(s, _stars(s))
+
+
 # in report order
 CHECKS = (
     Check("call", check_relation_call),
@@ -142,4 +151,5 @@ CHECKS = (
     Check("finite", check_relation_finite),
     Check("broadcasting", check_relation_broadcasting),
     Check("warnings", check_relation_warnings),
+    Check("support", check_relation_support, applies=declares_support),
 )
