@@ -35,3 +35,27 @@ def kramers_table(tmp_path_factory):
             lines.append(f"{r:.2f} " + " ".join(f"{v:.8f}" for v in np.log10(k)))
     path.write_text("\n".join(lines) + "\n")
     return str(path)
+
+
+# A small grid of main-sequence tracks for the track-grid components: 5 masses over 0.8-2 M_sun x 2
+# metallicities (Z 0.01, 0.02), 21 phases, evolution steps of 0.05 in X_c (the default grid takes 0.02), with the
+# default opacity law at its default parameters.  10 tracks, about 30 s of CPU (3-4 s each, measured), built once
+# on 2 worker processes and kept in the cache folder ($RADWALK_CACHE, which `make test` points at .cache), so a
+# later session only loads it.
+SMALL_TRACK_GRID = dict(mass_range=(0.8, 2.0), n_mass=5, z_range=(0.01, 0.02), n_z=2, n_phase=21, dXc=0.05)
+
+
+@pytest.fixture(scope="session")
+def small_track_grid(registry, tmp_path_factory):
+    """Path of the small track-grid file (built on first use), for the ``grid`` option of the track-grid stages."""
+    from radwalk.forward.model_grid import GridSpec, cached_grid, grid_key, grid_path
+    from radwalk.plugins.track_grid import MeshOpacity
+
+    law = registry.get("opacity", "combined")
+    kappa = MeshOpacity(law, {p.name: p.default for p in law.params})
+    spec = GridSpec(**SMALL_TRACK_GRID)
+    grid = cached_grid(kappa, spec, workers=2, progress=False)
+    path = grid_path(grid_key(kappa, spec))
+    if not path.is_file():  # a cache folder that cannot be written: keep it for this session only
+        path = grid.save(tmp_path_factory.mktemp("trackgrid") / path.name)
+    return str(path)

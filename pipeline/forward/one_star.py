@@ -19,7 +19,7 @@ SUMMARY_ROWS = (
     "mass", "radius", "luminosity", "teff", "age", "mu", "central_density", "central_temperature",
     "central_pressure", "central_hydrogen", "mean_free_path_center", "photosphere_radius", "diffusion_time",
     "diffusion_time_radiative_core", "diffusion_time_uniform", "convective_crossing_time", "energy_transport_time",
-    "kelvin_helmholtz_time", "dynamical_time", "eddington_luminosity", "eddington_ratio",
+    "kelvin_helmholtz_time", "dynamical_time", "main_sequence_lifetime", "eddington_luminosity", "eddington_ratio",
     "convective_core_mass_fraction", "convective_envelope_base_radius", "convective_turnover_time",
     "convective_turnover_time_global",
 )
@@ -102,7 +102,8 @@ def model_star(stages: StageSet, mass: float, X: float, Z: float, settings: dict
     age = float(np.atleast_1d(values["age"])[0]) if "age" in values else np.nan  # NaN: a model without an age
     computed = {"mass": mass, "radius": R[0], "luminosity": L[0], "teff": teff, "mu": mu(X, Z), "age": age,
                 **{name: v[0] for name, v in tr.scalars.items()}}
-    rows = [(summary_key(n), _json_number(quantity(n).to_output(computed[n]))) for n in SUMMARY_ROWS]
+    # A quantity the models do not give (the main-sequence lifetime of a polytrope) is null.
+    rows = [(summary_key(n), _json_number(quantity(n).to_output(computed.get(n, np.nan)))) for n in SUMMARY_ROWS]
     summary = {
         **dict(rows[:4]),  # mass, radius, luminosity, teff; then the composition
         "X": float(X),

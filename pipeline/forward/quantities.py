@@ -105,6 +105,8 @@ CATALOGUE: dict[str, Quantity] = {q.name: q for q in (
        r"$t_\mathrm{KH}$", TIMESCALES_GROUP),
     _q("dynamical_time", "s", "dynamical time sqrt(R^3/GM)", "dynamical time", r"$t_\mathrm{dyn}$",
        TIMESCALES_GROUP),
+    _q("main_sequence_lifetime", "Gyr", "main-sequence lifetime: age at which the central hydrogen fraction "
+       "falls to 0.01", "main-sequence lifetime", r"$t_\mathrm{MS}$", TIMESCALES_GROUP),
 
     _q("central_density", "g / cm3", "central density", "central density", r"$\rho_c$", CENTRE),
     _q("central_temperature", "K", "central temperature", "central temperature", r"$T_c$", CENTRE),
@@ -134,6 +136,8 @@ CATALOGUE: dict[str, Quantity] = {q.name: q for q in (
        r"$M_\mathrm{conv}/M$", CONVECTION),
     _q("convective_core_mass_fraction", "", "mass of the convective core over M (0: none)",
        "convective core mass fraction", r"$M_\mathrm{cc}/M$", CONVECTION),
+    _q("convective_envelope_base_mass_fraction", "", "mass inside the base of the convective envelope over M "
+       "(1: none)", "convective envelope base (m/M)", r"$m_\mathrm{ce}/M$", CONVECTION),
     _q("convective_turnover_time", "d", "local convective turnover time, mixing length over velocity half a "
        "pressure scale height above the envelope base", "convective turnover time (local)", r"$\tau_c$",
        CONVECTION),

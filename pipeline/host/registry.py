@@ -30,6 +30,7 @@ BUILTIN_MODULES = (
     "radwalk.plugins.relations",
     "radwalk.plugins.likelihoods",
     "radwalk.plugins.structure",
+    "radwalk.plugins.track_grid",
 )
 
 @dataclass(frozen=True)

@@ -205,6 +205,7 @@ def compute(profile: Profile, opacity, L) -> Transport:
         "convective_envelope_base_radius": env,
         "convective_mass_fraction": conv_mass,
         "convective_core_mass_fraction": core_mass,
+        "convective_envelope_base_mass_fraction": _mass_at(env, r_rel, m_rel),
         "convective_turnover_time": np.full(p.n, np.nan),
         "convective_turnover_time_global": np.full(p.n, np.nan),
     }
@@ -225,6 +226,11 @@ def compute(profile: Profile, opacity, L) -> Transport:
     if p.v_conv is not None:
         fields["v_conv"] = np.asarray(p.v_conv, dtype=float)
     return Transport(scalars, fields, conv)
+
+
+def _mass_at(x, r_rel, m_rel):
+    """m/M at r/R = x [n] of each sample, linear between grid points (1 at or above the surface)."""
+    return np.array([np.interp(xi, ri, mi) for xi, ri, mi in zip(x, r_rel, m_rel)])
 
 
 def _first_false_edge(mask, r_rel):

@@ -32,8 +32,9 @@ def sun_transport():
 def test_every_transport_scalar_has_one_entry(sun_transport):
     computed = set(sun_transport.scalars)
     described = {n for n, x in q.CATALOGUE.items() if x.group not in (q.PARAMETERS,)}
-    # radius, luminosity, teff and mu come from the relation and the composition, the rest from transport
-    assert computed == described - {"radius", "luminosity", "teff", "mu"}
+    # radius, luminosity, teff and mu come from the relation and the composition, the main-sequence lifetime
+    # from a model with a track (the track-grid profile), the rest from transport
+    assert computed == described - {"radius", "luminosity", "teff", "mu", "main_sequence_lifetime"}
 
 
 def test_every_derived_quantity_sits_in_one_report_group():
@@ -86,14 +87,16 @@ def test_plain_units():
 
 def test_model_summary_keys_are_the_documented_ones():
     # the keys `radwalk model --json` writes (README, tests/cli/test_cli_model.py); the radiative-layers-only
-    # diffusion time gave way to the radiative-zone one and the convection keys when the solved star came
+    # diffusion time gave way to the radiative-zone one and the convection keys when the solved star came;
+    # the main-sequence lifetime came with the track grid (null for models without a track)
     assert [summary_key(n) for n in SUMMARY_ROWS] == [
         "mass_msun", "radius_rsun", "luminosity_lsun", "teff_k", "age_gyr", "mu", "central_density_g_cm3",
         "central_temperature_k", "central_pressure_dyn_cm2", "central_hydrogen", "mean_free_path_center_cm",
         "photosphere_radius_rsun",
         "diffusion_time_yr", "diffusion_time_radiative_core_yr", "diffusion_time_uniform_yr",
         "convective_crossing_time_yr", "energy_transport_time_yr", "kelvin_helmholtz_time_yr",
-        "dynamical_time_s", "eddington_luminosity_lsun", "eddington_ratio", "convective_core_mass_fraction",
+        "dynamical_time_s", "main_sequence_lifetime_gyr", "eddington_luminosity_lsun", "eddington_ratio",
+        "convective_core_mass_fraction",
         "convective_envelope_base_radius", "convective_turnover_time_d", "convective_turnover_time_global_d"]
     stages = stages_for(RunConfig())
     summary = model_star(stages, 1.0, 0.70, 0.02, radius=1.0, luminosity=1.0).summary

@@ -13,7 +13,11 @@ from radwalk.host.registry import Registry
 from radwalk.host.stages import STAGES
 
 _REG = Registry()
-ENTRIES = [e for s in STAGES for e in _REG.entries[s].values() if e.name != "tabulated"]
+# Components that need an option before they can run are checked below, given it: the tabulated law its
+# table; the track-grid stages a grid file (the default grid ships with the package; until then the first use
+# builds it, minutes of CPU, so the contract is checked on the small session grid instead).
+NEEDS_OPTIONS = {"tabulated", "track-grid"}
+ENTRIES = [e for s in STAGES for e in _REG.entries[s].values() if e.name not in NEEDS_OPTIONS]
 
 
 @pytest.mark.parametrize("entry", ENTRIES, ids=[f"{e.stage}:{e.name}" for e in ENTRIES])
@@ -44,11 +48,20 @@ def test_tabulated_meets_the_contract_once_given_a_table(tmp_path):
     assert report.passed, report.format_table()
 
 
+@pytest.mark.parametrize("stage", ["relation", "profile"])
+def test_track_grid_stages_meet_the_contract_given_a_grid(stage, small_track_grid):
+    report = check_component(_REG.entries[stage]["track-grid"], options={"grid": small_track_grid}, registry=_REG)
+    assert report.passed, report.format_table()
+    # they declare the age's support, and its check ran
+    assert any(row.check == "support" and row.passed for row in report.rows), report.format_table()
+
+
 def test_every_stage_has_its_builtins():
     names = {s: set(_REG.names(s)) for s in STAGES}
     assert {"polytrope", "eddington-standard"} <= names["profile"]
     assert {"electron-scattering", "kramers", "h-minus", "combined", "tabulated"} <= names["opacity"]
-    assert {"homology", "eddington"} <= names["relation"]
+    assert {"homology", "eddington", "solved", "track-grid"} <= names["relation"]
+    assert {"solved", "track-grid"} <= names["profile"]
     assert {"gaussian", "student-t"} <= names["likelihood"]
 
 

@@ -142,6 +142,15 @@ def test_profile_only_parameters_are_drawn_inside_the_support(reg, rng):
     assert np.all(tilt <= theta[:, post.names.index("mass")])
 
 
+def test_a_parameter_the_profile_shares_with_the_relation_is_sampled(registry, small_track_grid):
+    stages = StageSet.build(registry, {"profile": "track-grid", "relation": "track-grid"},
+                            {"track-grid": {"grid": small_track_grid}})
+    obs = Observations({"radius": k.R_SUN, "luminosity": k.L_SUN, "teff": np.nan},
+                       {"radius": 0.02 * k.R_SUN, "luminosity": 0.05 * k.L_SUN, "teff": np.nan})
+    post = Posterior(stages, obs, RunConfig(settings={"grid": small_track_grid}))
+    assert "age" in post.names and not post.independent
+
+
 def test_contract_checks_a_declared_support(reg):
     good = check_component(reg.entries["relation"]["capped"], registry=reg)
     assert good.passed, good.format_table()

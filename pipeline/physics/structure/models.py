@@ -188,7 +188,7 @@ def _by_opacity_continuation(M, X, Z, kappa, alpha, first_error) -> StarStructur
     return star
 
 
-def solved_stars(M, X, Z, kappa, *, alpha_mlt=1.8, age=0.0) -> list[StarStructure]:
+def solved_stars(M, X, Z, kappa, *, alpha_mlt=1.8, age=0.0, past_end: str = "refuse") -> list[StarStructure]:
     """Solved structures of ``n`` samples at their ages on the main sequence.
 
     Parameters
@@ -202,6 +202,12 @@ def solved_stars(M, X, Z, kappa, *, alpha_mlt=1.8, age=0.0) -> list[StarStructur
         Mixing-length parameter.
     age : array_like [n] or scalar, Gyr
         Age since the zero-age main sequence (0: zero-age).
+    past_end : {"refuse", "last"}
+        What an age past the end of this star's main sequence gives: a
+        ModelError ("refuse"), or the track's last model, at central hydrogen
+        exhaustion ("last"; for a caller that has already placed the age on
+        the main sequence by another estimate of the lifetime, such as an
+        interpolated track grid, and only needs the nearest solved star).
 
     Returns
     -------
@@ -219,6 +225,8 @@ def solved_stars(M, X, Z, kappa, *, alpha_mlt=1.8, age=0.0) -> list[StarStructur
     n = M.size
     X, Z, alpha, age = (np.broadcast_to(np.asarray(v, dtype=float).reshape(-1) if np.ndim(v) else v, (n,))
                         for v in (X, Z, alpha_mlt, age))
+    if past_end not in ("refuse", "last"):
+        raise ConfigError(f"past_end must be 'refuse' or 'last', not {past_end!r}")
     if np.any((age < 0.0) | ~np.isfinite(age)):
         raise ConfigError(f"age = {float(age[(age < 0) | ~np.isfinite(age)][0]):g} Gyr: an age must be >= 0")
     okey = opacity_key(kappa)
@@ -227,27 +235,34 @@ def solved_stars(M, X, Z, kappa, *, alpha_mlt=1.8, age=0.0) -> list[StarStructur
         key = _key(M[i], X[i], Z[i], alpha[i], okey)
         law = _sample_opacity(kappa, i)
         zams = _solve_one(M[i], X[i], Z[i], law, alpha[i], key)
-        out[i] = zams if age[i] == 0.0 else _evolved(zams, M[i], X[i], Z[i], law, alpha[i], float(age[i]), key)
+        out[i] = zams if age[i] == 0.0 else _evolved(zams, M[i], X[i], Z[i], law, alpha[i], float(age[i]), key,
+                                                     past_end)
     return out
 
 
-def _evolved(zams: StarStructure, M, X, Z, kappa, alpha, age_gyr: float, key) -> StarStructure:
+def _evolved(zams: StarStructure, M, X, Z, kappa, alpha, age_gyr: float, key, past_end="refuse") -> StarStructure:
     """The star at ``age_gyr`` on its main-sequence track (kept in memory like the zero-age ones).
 
     Raises
     ------
     ModelError
         When the age lies beyond the end of the main sequence (central hydrogen exhausted) for this mass and
-        composition: the models here are main-sequence stars and say so rather than extrapolate.
+        composition: the models here are main-sequence stars and say so rather than extrapolate.  With
+        ``past_end="last"`` the track's last model is returned instead.
     """
     from radwalk.physics.structure.evolution import X_C_END, evolve
 
     aged_key = key + (round(age_gyr, 9),)
     if aged_key in _MEMORY:
         return _recalled(aged_key)
+    last_key = aged_key + ("last",)  # a past-the-end answer is kept apart: a refusing caller must still refuse
+    if past_end == "last" and last_key in _MEMORY:
+        return _recalled(last_key)
     gyr = 1e9 * k.YEAR
     track = evolve(M, X, Z, kappa, alpha_mlt=alpha, age_end=age_gyr * gyr, start=zams)
     if track.age[-1] < age_gyr * gyr * (1.0 - 1e-9):
+        if past_end == "last":
+            return _remember(last_key, track.models[-1])
         raise ModelError(
             f"age {age_gyr:g} Gyr is beyond the end of the main sequence of a {M / k.M_SUN:.4g} M_sun star with "
             f"X = {X:.4g}, Z = {Z:.4g}: central hydrogen falls to {X_C_END:g} at "
