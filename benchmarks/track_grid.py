@@ -19,7 +19,7 @@ import time
 import numpy as np
 
 from radwalk import constants as const
-from radwalk.forward.model_grid import GridSpec, build_grid, cached_grid, catalog_ranges, leave_one_out
+from radwalk.forward.model_grid import GridSpec, build_grid, cached_grid, catalog_ranges, leave_one_out, track_opacity
 from radwalk.host.config import RunConfig
 from radwalk.inference.fit import stages_for
 from radwalk.run.catalog import read_catalog
@@ -31,7 +31,7 @@ TARGETS = {"luminosity": 0.01, "teff": 0.005, "radius": 0.01, "main_sequence_lif
 def custom_build(law: str, catalog: str, workers: int) -> dict:
     """Build (never from the cache) the grid of ``law`` cut to ``catalog``; CPU of all processes and wall time."""
     stages = stages_for(RunConfig(stages={"opacity": law}))
-    kappa = stages.bound_opacity(stages.defaults())
+    kappa = track_opacity(stages.bound_opacity(stages.defaults()))
     cat = read_catalog(catalog)
     stars = [e.star for e in cat if e.star is not None]
     L = [s.user_values()["luminosity"][0] for s in stars]
@@ -56,7 +56,7 @@ def main():
     p.add_argument("--json", metavar="FILE", help="also write the numbers as JSON")
     a = p.parse_args()
     stages = stages_for(RunConfig())
-    kappa = stages.bound_opacity(stages.defaults())
+    kappa = track_opacity(stages.bound_opacity(stages.defaults()))
     spec = GridSpec()
     t0 = time.perf_counter()
     grid = cached_grid(kappa, spec, workers=a.workers)

@@ -58,12 +58,13 @@ def _opacity(args):
     """
     from pathlib import Path
 
+    from radwalk.forward.model_grid import track_opacity
     from radwalk.host.config import RunConfig
     from radwalk.inference.fit import stages_for
 
     plugins = tuple(str(Path(p).expanduser().resolve()) for p in args.plugin)
     stages = stages_for(RunConfig(stages={"opacity": args.opacity} if args.opacity else {}, plugins=plugins))
-    return stages.bound_opacity(stages.defaults())
+    return track_opacity(stages.bound_opacity(stages.defaults()))
 
 
 def _for_catalog(spec, path):

@@ -77,7 +77,7 @@ __all__ = ["GridSpec", "TrackGrid", "build_grid", "cached_grid", "grid_key", "gr
            "estimate_cpu_seconds", "leave_one_out", "helium_fraction", "solver_sources", "opacity_identity",
            "PRIMORDIAL_HELIUM", "HELIUM_PER_METALS", "FORMAT", "VERSION", "describe", "NAMES", "local_tracks",
            "shipped_path", "SHIPPED_DIR", "DEFAULT_MASS_NODES", "DEFAULT_Z_NODES", "metallicity_from_feh",
-           "catalog_ranges"]
+           "catalog_ranges", "MeshOpacity", "track_opacity"]
 
 FORMAT = "radwalk-track-grid"
 VERSION = 1
@@ -1006,3 +1006,32 @@ def catalog_ranges(luminosity_lsun, feh=None, spec: GridSpec | None = None) -> t
             z = spec.metallicities()
             z_range = (float(np.clip(zs[0], z[0], z[-1])), float(np.clip(zs[1], z[0], z[-1])))
     return mass_range, z_range
+
+
+class MeshOpacity:
+    """An opacity law with fixed parameters, called on one star's mesh as it comes.
+
+    The track builder calls the opacity on one star's arrays (rho, T [k, g] with X [g]), which a
+    :class:`radwalk.host.components.BoundOpacity` would lift against a sample axis.  This keeps the law and its
+    parameters as attributes, so a grid's key (:func:`opacity_identity`) is the bound law's, and it pickles for
+    the builder's worker processes.
+
+    Parameters
+    ----------
+    law : OpacityLaw
+    params : dict
+        The law's parameters (one value each; a per-sample array gives its first value).
+    """
+
+    def __init__(self, law, params: dict):
+        self.law = law
+        self.params = {name: float(np.asarray(v, dtype=float).ravel()[0]) for name, v in params.items()}
+
+    def __call__(self, rho, T, X, Z):
+        return self.law.kappa(rho, T, X, Z, **self.params)
+
+
+def track_opacity(opacity):
+    """The opacity as the track builder calls it: a bound law becomes a :class:`MeshOpacity`, a function stays."""
+    law, params = getattr(opacity, "law", None), getattr(opacity, "params", None)
+    return opacity if law is None or params is None else MeshOpacity(law, params)
