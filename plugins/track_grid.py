@@ -75,7 +75,12 @@ GYR = 1e9 * k.YEAR
 BAND_SAMPLES = 20
 """Samples whose radial structure is solved for the profile bands of a fit: 20 evenly spaced posterior
 samples put the 16th-84th percentile band on about 6 stars either side (common practice, no source); each
-costs one evolved star, 1-6 s of CPU."""
+costs one evolved star (see :data:`BAND_DXC`)."""
+
+BAND_DXC = 0.05
+"""Evolution step control (largest change of X per step) of the band stars: 0.05 instead of the tracks' 0.02
+takes 2-3 times fewer steps, and halving it changes L at 4.57 Gyr by only 1e-5 (measured, notes of
+:func:`radwalk.physics.structure.evolution.evolve`)."""
 
 _GRIDS: dict = {}  # (opacity identity, options) -> TrackGrid, shared by the profile and the relation
 
@@ -486,7 +491,7 @@ class TrackGridProfile(_GridSource):
             i = int(np.argmin(inside))
             raise ModelError(self.support_note(M[i:i + 1], X0[i:i + 1], Zs[i:i + 1], opacity=opacity,
                                                age=ages[i:i + 1]))
-        stars = solved_stars(M, X0, Zs, opacity, alpha_mlt=alpha, age=ages, past_end="last")
+        stars = solved_stars(M, X0, Zs, opacity, alpha_mlt=alpha, age=ages, past_end="last", dXc=BAND_DXC)
 
         def stack(attr):
             return np.stack([getattr(s, attr) for s in stars])

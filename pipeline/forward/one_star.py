@@ -12,6 +12,7 @@ from radwalk import constants as k
 from radwalk.errors import ConfigError, ModelError, ValidityWarning
 from radwalk.forward.quantities import plain_unit, quantity
 from radwalk.forward.stages import StageSet
+from radwalk.host.stages import DEFAULTS
 from radwalk.physics.composition import check_composition, mu
 
 # The quantities of the summary, in order; units and words from the quantity catalogue.
@@ -27,14 +28,17 @@ SUMMARY_ROWS = (
 SUB_ROWS = ("diffusion_time_radiative_core", "diffusion_time_uniform", "convective_turnover_time_global")
 
 
-# The components an age selects when no other profile or relation is named: only a solved star has a history.
+# The components an age selects when no other profile or relation is named: only a model with a history takes an
+# age.  The stage table's default when it is such a model (the track-grid stages, once they are the defaults),
+# else the solved star.
 AGE_MODELS = {"profile": "solved", "relation": "solved"}
+MODELS_WITH_AGE = ("solved", "track-grid")
 
 
 def with_age(stages: dict, settings: dict, age: float) -> None:
-    """Adds an age (Gyr) to stage names and settings, choosing the solved models unless others are named."""
+    """Adds an age (Gyr) to stage names and settings, choosing models with an age unless others are named."""
     for stage, name in AGE_MODELS.items():
-        stages.setdefault(stage, name)
+        stages.setdefault(stage, DEFAULTS[stage] if DEFAULTS[stage] in MODELS_WITH_AGE else name)
     settings["age"] = age
 
 

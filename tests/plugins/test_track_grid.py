@@ -155,3 +155,33 @@ def test_model_json_from_the_command_line(small_track_grid, capsys):
     # Bahcall et al. 2005, ApJ 621, L85; from memory).
     assert 7.0 < d["main_sequence_lifetime_gyr"] < 12.0
     assert 0.25 < d["central_hydrogen"] < 0.5
+
+
+def test_options_restrict_the_grid_to_build_and_refuse_nonsense():
+    from radwalk.errors import ConfigError
+    from radwalk.forward.model_grid import GridSpec, estimate_cpu_seconds
+    from radwalk.plugins.track_grid import TrackGridRelation
+
+    full = TrackGridRelation().spec()
+    assert full == GridSpec()  # no option: the default grid, which the package ships
+    part = TrackGridRelation().configure(grid_mass="0.9..1.1", grid_z="0.01..0.02")
+    spec = part.spec()
+    # the tracks covering the range, with the full grid's nodes (so its interpolation is the full grid's there)
+    assert spec.masses()[0] <= 0.9 and spec.masses()[-1] >= 1.1
+    assert set(spec.masses()) <= set(full.masses()) and spec.n_mass < full.n_mass
+    assert spec.metallicities()[0] <= 0.01 and spec.metallicities()[-1] >= 0.02
+    assert estimate_cpu_seconds(spec) < estimate_cpu_seconds(full)
+    assert part.validity.mass == (spec.masses()[0], spec.masses()[-1])
+    for bad in ("1.1", "2..1", "a..b", "-1..2"):
+        with pytest.raises(ConfigError, match="grid_mass"):
+            TrackGridRelation().configure(grid_mass=bad)
+    with pytest.raises(ConfigError, match="no option 'grid_size'"):
+        TrackGridRelation().configure(grid_size="3")
+
+
+def test_a_grid_file_of_another_opacity_law_is_refused(registry, small_track_grid):
+    from radwalk.errors import ConfigError
+
+    stages = StageSet.build(registry, {**NAMES, "opacity": "kramers"}, {"track-grid": {"grid": small_track_grid}})
+    with pytest.raises(ConfigError, match=r"was built with opacity 'combined'.*this run uses 'kramers'"):
+        stages.predict(_values(stages, [1.0], [0.014], [1.0]))
