@@ -64,6 +64,7 @@ from radwalk.forward.model_grid import (
 from radwalk.host.components import Profile
 from radwalk.host.hookspecs import hookimpl
 from radwalk.host.params import Option, Param, Prior, Validity
+from radwalk.physics.composition import mu
 from radwalk.physics.structure.models import opacity_key, solved_stars
 
 AGE_OF_UNIVERSE_GYR = 13.8
@@ -413,7 +414,8 @@ class TrackGridProfile(_GridSource):
             base's r/R and m/M; the photon diffusion times, the energy-transport
             and Kelvin-Helmholtz times (yr), the turnover times (d), the
             main-sequence lifetime (Gyr), the central mean free path (cm), the
-            dynamical time (s) and the Eddington luminosity (erg/s) and ratio.
+            dynamical time (s), the Eddington luminosity (erg/s) and ratio, and
+            the mean molecular weight of the grid's composition.
             NaN outside the grid or past the end of the main sequence.
         """
         grid, v, _ = self._at(M, Z, age, opacity)
@@ -446,6 +448,7 @@ class TrackGridProfile(_GridSource):
                 "convective_turnover_time": v["convective_turnover_time"] / 86400.0,
                 "convective_turnover_time_global": v["convective_turnover_time_global"] / 86400.0,
                 "main_sequence_lifetime": v["main_sequence_lifetime"] / GYR,
+                "mu": mu(X0, Zs) + 0.0 * v["radius"],  # the grid's composition, not the sampled X
             }
 
     def profile(self, M, R, X, Z, opacity=None, age=0.0) -> Profile:

@@ -101,6 +101,11 @@ def model_star(stages: StageSet, mass: float, X: float, Z: float, settings: dict
                               "--radius and --luminosity apply to the polytrope profiles")
         R, L = prof.R, tr.fields["luminosity"][:, -1]
     notes = list(dict.fromkeys([str(w.message) for w in caught] + stages.validity_messages(values, prof)))
+    X_model = float(prof.X[0])
+    if abs(X_model - X) > 1e-6:  # a model with a composition rule of its own (the track grid's Y(Z))
+        notes.append(f"profile {stages.profile.name!r} has X = {X_model:.4g} at Z = {Z:.4g} (its own composition "
+                     f"rule), not the X = {X:.4g} asked for; the summary gives its X")
+        X = X_model
     r_rel = prof.r[0] / prof.R[0]
     teff = (L[0] / (4 * np.pi * R[0] ** 2 * k.SIGMA_SB)) ** 0.25
     age = float(np.atleast_1d(values["age"])[0]) if "age" in values else np.nan  # NaN: a model without an age

@@ -18,7 +18,7 @@ from radwalk.inference.fit import fit_one, stages_for
 from radwalk.inference.posterior import Posterior
 from radwalk.inference.sampler import run_chain
 from radwalk.inference.star import Star, seed_for
-from radwalk.plugins.track_grid import GYR
+from radwalk.plugins.track_grid import GYR, hydrogen_of
 
 TRUTH = {"mass": 1.3, "Z": 0.014, "phase": 0.6}  # invented star: 1.3 M_sun, 60 % through its main sequence
 ERRORS = {"radius": 0.02, "luminosity": 0.04, "teff": 0.01}  # fractional, as for a well-measured field star
@@ -109,6 +109,12 @@ def test_derived_quantities_come_from_the_grid_and_bands_from_few_solved_stars(s
         assert derived[name].shape == (6,) and np.isfinite(derived[name]).all(), name
     # the grid's values, sample by sample (a 1.25-1.35 M_sun star at a fixed age: more massive, less X_c left)
     assert np.all(np.diff(derived["central_hydrogen"]) < 0)
+    # the mean molecular weight is the grid's composition's, not the sampled X's (0.7 here)
+    grid = stages.relation.grid(stages.bound_opacity(stages.defaults()))
+    X0 = float(hydrogen_of(grid, truth["Z"]))
+    Y0 = 1.0 - X0 - truth["Z"]
+    # fully ionised gas: 1 / mu = 2 X + 3 Y / 4 + Z / 2 (Kippenhahn, Weigert & Weiss 2012, sect. 4.2)
+    assert derived["mu"] == pytest.approx(np.full(6, 1.0 / (2.0 * X0 + 0.75 * Y0 + 0.5 * truth["Z"])))
     assert bands["T"].shape[1] == r_rel.size
 
 

@@ -135,6 +135,9 @@ def test_model_of_one_star_at_any_age_on_its_track(small_track_grid, grid):
     assert old["age_gyr"] == pytest.approx(0.98 * life)
     assert 0.0 <= old["central_hydrogen"] < 0.1
     assert old["stages"]["profile"] == old["stages"]["relation"] == "track-grid"
+    # the star has the grid's composition, and the summary says so rather than echo the X asked for
+    assert old["X"] == pytest.approx(float(hydrogen_of(grid, 0.014)))
+    assert any("its own composition rule" in w for w in old["warnings"])
     with pytest.raises(ModelError, match=r"beyond the end of the main sequence of a 1.2 M_sun star with Z = 0.014: "
                                          r"its main-sequence lifetime is"):
         one_star(1.2, 0.7, 0.014, stages=dict(NAMES), settings=dict(settings), age=1.05 * life)
