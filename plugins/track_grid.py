@@ -60,6 +60,7 @@ from radwalk.forward.model_grid import (
     cached_grid,
     estimate_cpu_seconds,
     opacity_identity,
+    track_opacity,
 )
 from radwalk.host.components import Profile
 from radwalk.host.hookspecs import hookimpl
@@ -128,28 +129,6 @@ def hydrogen_of(grid: TrackGrid, Z):
     return 1.0 - (float(rule["Y_p"]) + float(rule["dY_dZ"]) * Z) - Z
 
 
-class MeshOpacity:
-    """A bound opacity law with fixed parameters, called on one star's arrays as they come.
-
-    The track builder calls the opacity on one star's mesh (rho, T [k, g] with X [g]); a
-    :class:`radwalk.host.components.BoundOpacity` would lift that X against a sample axis.  This keeps the
-    law and its parameters as attributes, so the grid's key (:func:`radwalk.forward.model_grid.opacity_identity`)
-    is the same as the bound law's, and pickles for the builder's worker processes.
-    """
-
-    def __init__(self, law, params: dict):
-        self.law = law
-        self.params = {name: float(np.asarray(v, dtype=float).ravel()[0]) for name, v in params.items()}
-
-    def __call__(self, rho, T, X, Z):
-        return self.law.kappa(rho, T, X, Z, **self.params)
-
-
-def _mesh_opacity(opacity):
-    law, params = getattr(opacity, "law", None), getattr(opacity, "params", None)
-    return opacity if law is None or params is None else MeshOpacity(law, params)
-
-
 class _GridSource:
     """Finds the track grid of a bound opacity law: the named file, the cache's, or one built now."""
 
@@ -200,7 +179,7 @@ class _GridSource:
                               "each); hold the opacity parameters fixed")
         key = (okey, self.options_key)
         if key not in _GRIDS:
-            kappa = _mesh_opacity(opacity)
+            kappa = track_opacity(opacity)  # the grid's key is the bound law's; the builder calls it per star
             _GRIDS[key] = self._file_grid(kappa) if self.grid_file else self._cached_grid(kappa)
         return _GRIDS[key]
 

@@ -48,8 +48,7 @@ SMALL_TRACK_GRID = dict(mass_range=(0.8, 2.0), n_mass=5, z_range=(0.01, 0.02), n
 @pytest.fixture(scope="session")
 def small_track_grid(registry, tmp_path_factory):
     """Path of the small track-grid file (built on first use), for the ``grid`` option of the track-grid stages."""
-    from radwalk.forward.model_grid import GridSpec, cached_grid, grid_key, grid_path
-    from radwalk.plugins.track_grid import MeshOpacity
+    from radwalk.forward.model_grid import GridSpec, MeshOpacity, cached_grid, grid_key, grid_path
 
     law = registry.get("opacity", "combined")
     kappa = MeshOpacity(law, {p.name: p.default for p in law.params})
