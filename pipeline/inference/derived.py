@@ -15,24 +15,39 @@ from radwalk.errors import ModelError, PluginError, ValidityWarning
 from radwalk.forward.quantities import CATALOGUE, quantity, register_plugin_quantity
 from radwalk.inference.posterior import Posterior
 from radwalk.physics.composition import mu
-from radwalk.results.document import NO_REACH_SIGMA
+from radwalk.results.document import NO_REACH_FRACTION, NO_REACH_MODEL_ERRORS, NO_REACH_SIGMA
 from radwalk.results.products import BAND_FIELDS, BAND_PERCENTILES
 
 
 def check_reachable(post: Posterior, theta_map):
     """Raises ModelError when the best model is still far from a measured observable.
 
+    ``theta_map`` is one point [ndim] or several [n, ndim] (the posterior's
+    maximum and the chain's samples); of several, the one of highest
+    likelihood is the best model.  Not the posterior's maximum alone: where
+    the likelihood is broad (the model's own errors are large) the prior's
+    density (log-uniform in Z, say) moves that maximum away from the data,
+    while models that reach the data lie inside the priors all the same.
+
     A relation that can say why no star of it matches (an optional method
     ``unreachable_note(observed, opacity=..., Z=(lo, hi)) -> str | None``,
     given the observations, the bound opacity and the metallicities the
     priors allow) has its words added to the refusal.
     """
+    theta = np.atleast_2d(theta_map)
+    if theta.shape[0] > 1:
+        with np.errstate(all="ignore"):
+            ll = post.log_likelihood(theta)
+        theta_map = theta[int(np.argmax(np.where(np.isnan(ll), -np.inf, ll)))]
+    theta_map = np.asarray(theta_map).reshape(-1)
     pred = post.predict(theta_map[None, :])
     obs = post.observed
+    floors = model_errors(post)
     for key in obs.present():
         p = float(pred[key][0])
         v, e = obs.values[key], obs.errors[key]
-        if not np.isfinite(p) or abs(p - v) / e > NO_REACH_SIGMA and abs(p - v) / v > 0.1:
+        slack = max(NO_REACH_FRACTION, NO_REACH_MODEL_ERRORS * floors.get(f"floor_{key}", 0.0))
+        if not np.isfinite(p) or abs(p - v) / e > NO_REACH_SIGMA and abs(p - v) / v > slack:
             q = quantity(key)
             best = "none" if not np.isfinite(p) else f"{q.to_output(p):.4g} {q.output_unit}"
             note = _unreachable_note(post, theta_map)
@@ -148,13 +163,18 @@ def plugin_quantities(stages, profile, values, tr, taken: set) -> dict:
     return out
 
 
+def model_errors(post: Posterior) -> dict:
+    """The likelihood's fractional model errors ``floor_<observable>`` as the run sets them (name -> float)."""
+    floors = {p.name: float(p.default) for p in post.stages.likelihood.params if p.name.startswith("floor_")}
+    floors.update({kk: float(v) for kk, v in post.fixed.items() if kk.startswith("floor_")})
+    return floors
+
+
 def ppc_pvalue(post: Posterior, samples, rng: np.random.Generator):
     """Posterior-predictive p-value of chi^2: replicated data as extreme as the observed."""
     pred = post.predict(samples)
     obs = post.observed
-    lik = post.stages.likelihood
-    floors = {p.name: p.default for p in lik.params}
-    floors.update({kk: v for kk, v in post.fixed.items() if kk.startswith("floor_")})
+    floors = model_errors(post)
     chi_obs = np.zeros(samples.shape[0])
     chi_rep = np.zeros(samples.shape[0])
     for key in obs.present():

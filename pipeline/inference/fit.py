@@ -115,8 +115,8 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     post = Posterior(stages, star.observations(), config, feh=star.feh)
     chain_seed, ppc_seed, prior_seed = seed.spawn(3)
     chain = run_chain(post, config.sampler, chain_seed, chain_path=chain_path)
-    check_reachable(post, chain.map_theta)
     flat, flat_lp = chain.flat()
+    check_reachable(post, np.vstack([chain.map_theta[None, :], flat]))  # the best-fitting of them is judged
     indep = post.draw_independent(np.random.default_rng(prior_seed), flat.shape[0], theta=flat)
     flat = np.column_stack([flat, indep])
     idx = _evenly(flat.shape[0], config.sampler.derived_samples)
@@ -124,6 +124,8 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     pval = ppc_pvalue(post, flat[idx], np.random.default_rng(ppc_seed))
 
     warn = list(dict.fromkeys(notes))
+    if star.luminosity_derived and star.luminosity_used:
+        warn.append(star.luminosity_note())
     if not chain.converged:
         warn.append(f"not converged: {chain.reason}")
     if np.isfinite(pval) and pval < PPC_POOR:

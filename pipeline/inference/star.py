@@ -17,17 +17,29 @@ class Star:
     """One star: id, observables in cgs (NaN: not measured) and an optional [Fe/H].
 
     User units are the quantity catalogue's output units (R_sun, L_sun, K).
+
+    ``luminosity_derived`` says that the catalog computed L from its own R and
+    T_eff (L = 4 pi R^2 sigma T_eff^4).  L then holds no information beyond
+    theirs, and its error is not independent of theirs: counting it as a third
+    measurement would count R and T_eff twice.  When R and T_eff are both
+    measured, :meth:`observations` leaves L out of the likelihood (it stays in
+    the star's record and reports); when one of them is missing, L carries its
+    information and is kept.
     """
 
     id: str
     values: tuple  # (radius cm, luminosity erg/s, teff K)
     errors: tuple
     feh: tuple | None = None  # ([Fe/H], error) in dex
+    luminosity_derived: bool = False
 
     @classmethod
     def from_user_units(cls, id, radius=None, radius_err=None, luminosity=None, luminosity_err=None,
-                        teff=None, teff_err=None, feh=None, feh_err=None) -> Star:
-        """From R_sun, L_sun, K (None or NaN: not measured); raises CatalogError for bad values."""
+                        teff=None, teff_err=None, feh=None, feh_err=None, luminosity_derived=False) -> Star:
+        """From R_sun, L_sun, K (None or NaN: not measured); raises CatalogError for bad values.
+
+        ``luminosity_derived``: the luminosity was computed from this radius and T_eff (see the class).
+        """
         given = {"radius": (radius, radius_err), "luminosity": (luminosity, luminosity_err), "teff": (teff, teff_err)}
         vals, errs = [], []
         for key in OBSERVABLES:
@@ -57,10 +69,33 @@ class Star:
             if not -5 < feh < 1.5:
                 raise CatalogError(f"[Fe/H] = {feh:g} dex is outside -5 to 1.5, not a stellar metallicity")
             fe = (float(feh), float(feh_err))
-        return cls(str(id), tuple(vals), tuple(errs), fe)
+        return cls(str(id), tuple(vals), tuple(errs), fe, bool(luminosity_derived))
+
+    @property
+    def luminosity_used(self) -> bool:
+        """Whether the measured L enters the likelihood (False when it repeats R and T_eff, or is missing)."""
+        values = dict(zip(OBSERVABLES, self.values))
+        if not np.isfinite(values["luminosity"]):
+            return False
+        if self.luminosity_derived:
+            return not (np.isfinite(values["radius"]) and np.isfinite(values["teff"]))
+        return True
+
+    def luminosity_note(self) -> str:
+        """One line on how a luminosity marked as derived is used ("" for a measured one)."""
+        if not self.luminosity_derived or not np.isfinite(self.values[OBSERVABLES.index("luminosity")]):
+            return ""
+        if self.luminosity_used:
+            return ("luminosity marked as derived from R and T_eff, but one of them is not measured: L is kept "
+                    "in the likelihood in its place")
+        return "luminosity derived from R and T_eff in the catalog: left out of the likelihood (R and T_eff fit)"
 
     def observations(self) -> Observations:
-        return Observations(dict(zip(OBSERVABLES, self.values)), dict(zip(OBSERVABLES, self.errors)))
+        """The observables the likelihood compares, in cgs (NaN: not measured or not used)."""
+        values, errors = dict(zip(OBSERVABLES, self.values)), dict(zip(OBSERVABLES, self.errors))
+        if self.luminosity_derived and not self.luminosity_used:
+            values["luminosity"] = errors["luminosity"] = np.nan
+        return Observations(values, errors)
 
     def user_values(self) -> dict:
         """Observables in R_sun, L_sun, K as name -> (value, error)."""

@@ -3,7 +3,9 @@
 A document holds ``id``, ``status`` (one of :data:`STATUSES`), ``reason``,
 ``observed`` (name -> {"value", "error"} in :data:`OBSERVED_UNITS`), ``feh``
 ([value, error] in dex, or null), ``seed``, ``radwalk_version`` and
-``seconds``; a fitted star adds the fit's summary (``opacity``, ``stages``,
+``seconds``, ``luminosity_derived`` (true when the catalog computed L from its
+R and T_eff, so that the fit left L out: see
+:class:`radwalk.inference.star.Star`); a fitted star adds the fit's summary (``opacity``, ``stages``,
 ``parameters``, ``fixed``, ``derived``, ``sampler``, ``ppc_pvalue``,
 ``unconstrained``, ``warnings``, ``plots`` and, when several opacity laws
 were fitted, ``comparison``).  Every percentile entry holds ``p16``, ``p50``
@@ -21,14 +23,18 @@ from radwalk import __version__
 STATUSES = ("ok", "not-converged", "failed")
 PERCENTILES = (16.0, 50.0, 84.0)  # the p16, p50, p84 of every parameter and derived quantity
 PPC_POOR = 0.01  # posterior-predictive p-value below which the fit is flagged as poor
-NO_REACH_SIGMA = 5.0  # an observable this many sigma from the best model cannot be reached
+NO_REACH_SIGMA = 5.0  # an observable this many sigma from the best model cannot be reached ...
+# ... when the miss is also beyond this many times the likelihood's model error of that observable (its
+# floor_<name>; at least NO_REACH_FRACTION): a miss the model is known to make is not a star it cannot reach
+NO_REACH_MODEL_ERRORS = 2.0
+NO_REACH_FRACTION = 0.1
 
 # Units of the document's "observed" block (the catalogue's output units of these observables).
 OBSERVED_UNITS = {"radius": "R_sun", "luminosity": "L_sun", "teff": "K"}
 
 
 def document(star_id: str, status: str, reason: str, observed: dict, feh, seed: int, seconds: float,
-             **rest) -> dict:
+             luminosity_derived: bool = False, **rest) -> dict:
     """A summary document from its parts.
 
     Parameters
@@ -46,6 +52,8 @@ def document(star_id: str, status: str, reason: str, observed: dict, feh, seed: 
         The run's global seed.
     seconds : float, s
         Wall time of the star's fit.
+    luminosity_derived : bool
+        The catalog's L was computed from its R and T_eff (and left out of the likelihood).
     **rest
         Further entries, appended in order (the fit's summary, ``catalog_row``, ...).
     """
@@ -54,6 +62,7 @@ def document(star_id: str, status: str, reason: str, observed: dict, feh, seed: 
         "observed": {key: {"value": v, "error": e} for key, (v, e) in observed.items()},
         "feh": list(feh) if feh else None,
         "seed": seed, "radwalk_version": __version__, "seconds": seconds,
+        "luminosity_derived": bool(luminosity_derived),
         **rest,
     }
 
@@ -68,7 +77,7 @@ def result_document(star, config, result) -> dict:
     result : radwalk.inference.fit.StarResult
     """
     return document(star.id, result.status, result.reason, star.user_values(), star.feh, config.seed,
-                    result.seconds, **result.summary)
+                    result.seconds, luminosity_derived=star.luminosity_derived, **result.summary)
 
 
 def read_document(path) -> dict | None:

@@ -7,6 +7,12 @@ astropy's own guess.  Default columns are ``id``, ``radius``, ``radius_err``,
 ``feh``, ``feh_err``; the run config's ``[columns]`` table maps these names to
 the file's (our name -> file column).
 
+An optional column ``luminosity_derived`` (true/false, yes/no, 1/0; empty
+means false) marks rows whose luminosity the catalog computed from its own
+radius and T_eff; the fit then leaves L out of the likelihood
+(:class:`radwalk.inference.star.Star`).  It is found by its name (any case)
+only, not through ``[columns]``; an unreadable flag fails its row.
+
 Units come from the file and are converted with astropy.units: a radius in
 km or m becomes R_sun (IAU 2015 nominal, :mod:`radwalk.constants`), a
 luminosity in W or erg/s becomes L_sun, T_eff must be a temperature in K.  A
@@ -45,6 +51,8 @@ from radwalk.host.registry import suggest
 from radwalk.inference.star import Star
 
 OBSERVABLE_PAIRS = (("radius", "radius_err"), ("luminosity", "luminosity_err"), ("teff", "teff_err"))
+DERIVED_FLAG = "luminosity_derived"  # optional: L was computed from the row's R and T_eff
+_TRUE, _FALSE = ("true", "yes", "y", "t", "1"), ("false", "no", "n", "f", "0", "")
 FEH_PAIR = ("feh", "feh_err")
 
 # Default unit of a value column that has none in the file (documented in the module docstring).
@@ -330,6 +338,39 @@ def _ids(table, colname: str, path: Path) -> list[str]:
     return ids
 
 
+def _flags(table, n: int, bad: dict, notices: list) -> np.ndarray:
+    """The optional ``luminosity_derived`` column as bools [n] (False without the column); bad cells in ``bad``."""
+    names = [c for c in table.colnames if c.lower() == DERIVED_FLAG]
+    out = np.zeros(n, dtype=bool)
+    if not names:
+        return out
+    if len(names) > 1:
+        raise CatalogError(f"catalog has {len(names)} columns named {DERIVED_FLAG} in different cases: "
+                           f"{', '.join(names)}")
+    if names[0] != DERIVED_FLAG:
+        notices.append(f"column {names[0]!r} read as {DERIVED_FLAG}")
+    col = table[names[0]]
+    data = col.data if hasattr(col, "data") else np.asarray(col)
+    mask = np.ma.getmaskarray(data) if np.ma.isMaskedArray(data) else np.zeros(n, dtype=bool)
+    for i, cell in enumerate(np.ma.getdata(data)):
+        if mask[i]:
+            continue
+        if isinstance(cell, bytes):
+            cell = cell.decode("utf-8", "replace")
+        if isinstance(cell, (float, np.floating)) and math.isnan(cell):
+            continue
+        text = str(cell).strip().lower()
+        if isinstance(cell, (bool, np.bool_)):
+            out[i] = bool(cell)
+        elif isinstance(cell, (int, np.integer, float, np.floating)) and float(cell) in (0.0, 1.0):
+            out[i] = float(cell) == 1.0
+        elif text in _TRUE or text in _FALSE:
+            out[i] = text in _TRUE
+        else:
+            bad.setdefault(i, f"{DERIVED_FLAG} value {str(cell).strip()!r} is not true/false, yes/no or 1/0")
+    return out
+
+
 def _plausible(key: str, value: float) -> str | None:
     lo, hi, unit, label = PLAUSIBLE[key]
     if math.isfinite(value) and value > 0 and not lo <= value <= hi:
@@ -390,6 +431,7 @@ def read_catalog(path, columns: dict | None = None) -> Catalog:
         values[err_name] = _as_floats(ecol, n, err_name, bad) * fe
         units[value_name], units[err_name] = unit_name(vunit), unit_name(eunit)
 
+    derived = _flags(table, n, bad, notices)
     nan = np.full(n, np.nan)
     entries, observed = [], []
     for i in range(n):
@@ -404,7 +446,8 @@ def read_catalog(path, columns: dict | None = None) -> Catalog:
             try:
                 star = Star.from_user_units(
                     ids[i], row["radius"], row["radius_err"], row["luminosity"], row["luminosity_err"],
-                    row["teff"], row["teff_err"], feh=feh, feh_err=row["feh_err"] if feh is not None else None)
+                    row["teff"], row["teff_err"], feh=feh, feh_err=row["feh_err"] if feh is not None else None,
+                    luminosity_derived=bool(derived[i]))
             except CatalogError as exc:
                 reason = str(exc)
         if reason is None:

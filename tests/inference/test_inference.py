@@ -15,6 +15,12 @@ from radwalk.inference.star import Star, seed_for
 FAST = RunConfig(sampler=SamplerConfig(walkers=16, chunk=200, max_steps=1400, derived_samples=100,
                                        optimizer_starts=2))
 REL_ERR = {"radius": 0.03, "luminosity": 0.05, "teff": 0.015}
+# Model errors (the likelihood's floor_*) of the tests below that are about the sampler and the posterior, not
+# about the model's error: the likelihood's defaults before they were sized from the model's measured misses
+# (docs/likelihood.md).  With today's defaults (10.6 %, 26.8 %, 4.3 %) the data no longer dominate the mass
+# prior, and the coverage test, which draws its truths from 0.6-15 M_sun inside a 0.1-60 M_sun prior, measured
+# 0.583 (mass 0.50, X 0.625, Z 0.625 over 40 stars; the same with chains of 5000 steps).
+NARROW_FLOORS = {"floor_radius": 0.03, "floor_luminosity": 0.05, "floor_teff": 0.01}
 
 
 def synthetic(config, truth, rng, name="syn"):
@@ -24,6 +30,7 @@ def synthetic(config, truth, rng, name="syn"):
     v.update({key: np.array([val]) for key, val in truth.items()})
     pred = stages.predict(v)
     floors = {p.name: p.default for p in stages.likelihood.params}
+    floors.update({key: v for key, v in config.settings.items() if key.startswith("floor_")})
     obs = {}
     for key, f in (("radius", k.R_SUN), ("luminosity", k.L_SUN), ("teff", 1.0)):
         value = pred[key][0] / f
@@ -39,7 +46,9 @@ def test_recovery_truth_inside_95(rng):
     # with 12 independent intervals two misses still happen 2 % of the time, three or more do not.
     truths = [{"mass": 0.9, "X": 0.72, "Z": 0.012}, {"mass": 3.0, "X": 0.68, "Z": 0.02},
               {"mass": 1.5, "X": 0.75, "Z": 0.005}, {"mass": 8.0, "X": 0.70, "Z": 0.03}]
-    cfg = RunConfig(sampler=SamplerConfig(walkers=24, max_steps=4000, derived_samples=100, optimizer_starts=2))
+    # The 15 % bound on the median mass below was set for NARROW_FLOORS; the noise is drawn with them too.
+    cfg = RunConfig(sampler=SamplerConfig(walkers=24, max_steps=4000, derived_samples=100, optimizer_starts=2),
+                    settings=NARROW_FLOORS)
     misses = []
     for i, truth in enumerate(truths):
         star = synthetic(cfg, truth, rng, f"rec{i}")
@@ -58,7 +67,7 @@ def test_recovery_truth_inside_95(rng):
 
 def _coverage_one(i):
     rng = np.random.default_rng([2026, i])
-    cfg = FAST
+    cfg = FAST.with_changes(settings=NARROW_FLOORS)
     stages = stages_for(cfg)
     base = {p.name: p for p in stages.all_params()}
     truth = {
