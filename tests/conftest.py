@@ -58,3 +58,40 @@ def small_track_grid(registry, tmp_path_factory):
     if not path.is_file():  # a cache folder that cannot be written: keep it for this session only
         path = grid.save(tmp_path_factory.mktemp("trackgrid") / path.name)
     return str(path)
+
+
+DYNAMICAL_MASSES = os.path.join(os.path.dirname(__file__), "data", "dynamical_masses.csv")
+
+
+def load_dynamical_mass_stars(path=DYNAMICAL_MASSES):
+    """Real stars with dynamically measured masses (tests/data/dynamical_masses.csv; papers in its columns).
+
+    Returns
+    -------
+    list of dict
+        Per row: ``star`` (radwalk.inference.star.Star, read through the catalog reader, so a row marked
+        ``luminosity_derived`` reaches the likelihood without L), ``mass`` and ``mass_err`` (M_sun),
+        ``system``, ``component``, ``orbit`` (eclipsing or astrometric), ``stage`` (main sequence, late
+        main sequence, subgiant), ``reference`` and ``source_note``.
+    """
+    from astropy.table import Table
+
+    from radwalk.run.catalog import read_catalog
+
+    catalog = read_catalog(path)
+    bad = [e.error for e in catalog.stars if e.star is None]
+    if bad:
+        raise ValueError(f"{path}: unusable rows: {bad}")
+    extra = Table.read(path, format="ascii.csv")
+    rows = []
+    for entry, row in zip(catalog.stars, extra):
+        rows.append({"star": entry.star, "mass": float(row["mass"]), "mass_err": float(row["mass_err"]),
+                     **{key: str(row[key]) for key in ("system", "component", "orbit", "stage", "reference",
+                                                       "source_note")}})
+    return rows
+
+
+@pytest.fixture(scope="session")
+def dynamical_mass_stars():
+    """:func:`load_dynamical_mass_stars`, read once per session."""
+    return load_dynamical_mass_stars()
