@@ -122,7 +122,7 @@ def derive(post: Posterior, samples: np.ndarray):
         derived[key] = v * (CATALOGUE[key].factor if key in CATALOGUE else 1.0)
     for key, v in plugin_quantities(post.stages, prof, vals_band, tr, set(derived)).items():
         derived[key] = v if quick is None else _spread(v, rows, n_ok)
-    fields = {"rho": prof.rho, "T": prof.T, **tr.fields}
+    fields = {"rho": prof.rho, "T": prof.T, "convective": np.asarray(tr.convective, dtype=float), **tr.fields}
     bands = {f: np.percentile(fields[f], BAND_PERCENTILES, axis=0) for f in BAND_FIELDS}
     return derived, bands, prof.r[0] / prof.R[0], notes, ok
 

@@ -376,6 +376,47 @@ PROFILE_PANELS = (
 
 
 SURFACE_CUT = 0.999  # r/R beyond which log-axis limits ignore the profile (see profile_figure)
+CONVECTIVE = "#e8a33d"
+# Shading of convective layers: (row of the "convective" band, alpha, legend words).  Row 50 % >= 0.5 where
+# most samples are convective, row 97.5 % >= 0.5 where at least 2.5 % of them are.
+CONVECTIVE_SHADES = ((97.5, 0.12, "convective in some samples (> 2.5 %)"),
+                     (50.0, 0.30, "convective in most samples (> 50 %)"))
+
+
+def convective_spans(row: np.ndarray, r: np.ndarray) -> list[tuple[float, float]]:
+    """(r/R from, to) of the runs of layers where a band row of the "convective" field is >= 0.5.
+
+    Parameters
+    ----------
+    row : ndarray [g]
+        One percentile row of the band (0 radiative, 1 convective; in between at a boundary).
+    r : ndarray [g]
+        r/R of the layers.
+
+    Returns
+    -------
+    list of (float, float)
+        Each run from halfway to its inner neighbour to halfway to its outer one (the ends at the centre and
+        the surface themselves).
+    """
+    conv = np.asarray(row, dtype=float) >= 0.5
+    if not conv.any():
+        return []
+    mid = np.concatenate([[r[0]], 0.5 * (r[1:] + r[:-1]), [r[-1]]])
+    edges = np.flatnonzero(np.diff(np.concatenate([[0], conv.astype(int), [0]])))
+    return [(float(mid[a]), float(mid[b])) for a, b in zip(edges[::2], edges[1::2])]
+
+
+def _shade_convection(ax, band, r) -> list:
+    """Shades the convective layers of one panel; returns the legend handles of the shades drawn."""
+    handles = []
+    for pct, alpha, words in CONVECTIVE_SHADES:
+        spans = convective_spans(band[BAND_PERCENTILES.index(pct)], r)
+        for lo, hi in spans:
+            ax.axvspan(lo, hi, color=CONVECTIVE, alpha=alpha, lw=0, zorder=0, gid="convective")
+        if spans:
+            handles.append(Patch(color=CONVECTIVE, alpha=alpha, lw=0, label=words))
+    return handles
 
 
 def _log_limits(band: np.ndarray, r: np.ndarray):
@@ -400,7 +441,11 @@ def profile_figure(products: FitProducts) -> Figure:
         fig = Figure(figsize=(10, 10.5), layout="constrained")
         grid = fig.subplots(3, 2, sharex=True)
         r = np.asarray(products.r_rel, dtype=float)
+        convective = products.bands.get("convective")
+        shades = []
         for (key, title, ylabel, log), ax in zip(PROFILE_PANELS, grid.flat):
+            if convective is not None:
+                shades = _shade_convection(ax, np.asarray(convective, dtype=float), r)
             band = np.array(products.bands[key], dtype=float)
             lim = None
             if log:
@@ -429,11 +474,14 @@ def profile_figure(products: FitProducts) -> Figure:
         info.set_axis_off()
         handles = [Patch(color=POSTERIOR, alpha=0.38, lw=0, label="68 % credible band"),
                    Patch(color=POSTERIOR, alpha=0.18, lw=0, label="95 % credible band"),
-                   Line2D([], [], color=POSTERIOR, lw=1.4, label="median")]
+                   Line2D([], [], color=POSTERIOR, lw=1.4, label="median")] + shades
         info.legend(handles=handles, loc="upper left", frameon=False, fontsize=10)
+        zones = ("convective zones: none in any sample" if convective is not None and not shades
+                 else "" if convective is not None else "convective zones: not recorded")
         text = (f"star {plain(products.star.id)}\nopacity law: {plain(products.opacity)}\n"
                 f"bands over {len(next(iter(products.derived.values()), []))} posterior samples\n"
-                r"$t_\mathrm{diff}(<r) = c^{-1}\int_0^r \kappa\rho\, r'\,\mathrm{d}r'$")
+                + (f"{zones}\n" if zones else "")
+                + r"$t_\mathrm{diff}(<r) = c^{-1}\int_0^r \kappa\rho\, r'\,\mathrm{d}r'$")
         info.text(0.0, 0.45, text, transform=info.transAxes, va="top", fontsize=10)
         fig.suptitle(f"{plain(products.star.id)}: interior profile", fontsize=12)
     return fig
@@ -764,13 +812,38 @@ def _readable_log_axis(axis, min_factor: float):
         axis.set_minor_formatter(NullFormatter())
 
 
+# The timescales of the catalog plot: name -> (marker, colour, legend words).  A quantity a star's model
+# does not give (no main-sequence lifetime for a polytrope) is simply not drawn for it.
+CATALOG_TIMESCALES = {
+    "diffusion_time": ("o", "C0", r"photon diffusion time $t_\mathrm{diff}$"),
+    "energy_transport_time": ("s", "C2", r"energy-transport time $t_\mathrm{th} = U/L$"),
+    "kelvin_helmholtz_time": ("D", "C3", r"Kelvin–Helmholtz time $t_\mathrm{KH}$"),
+    "main_sequence_lifetime": ("^", "C1", r"main-sequence lifetime $t_\mathrm{MS}$"),
+}
+
+
+def _quantiles_in_years(s: dict, key: str):
+    """(p16, p50, p84) of a derived timescale in yr, converted from the unit summary.json gives it in."""
+    q = _quantiles(s, "derived", key)
+    unit = ((s.get("derived") or {}).get(key) or {}).get("unit") or "yr"
+    if unit == "yr":
+        return q
+    try:
+        import astropy.units as u
+
+        factor = float(u.Unit(unit).to(u.yr))
+    except (ValueError, u.UnitsError):
+        return (float("nan"),) * 3  # not a time: nothing to draw
+    return tuple(v * factor for v in q)
+
+
 def timescales_vs_mass_figure(summaries: list) -> Figure:
-    """Photon diffusion and Kelvin-Helmholtz times (median, 16-84 %) against the fitted mass."""
+    """Photon diffusion, energy-transport and Kelvin-Helmholtz times and the main-sequence lifetime
+    (median, 16-84 %) against the fitted mass, each where the stars' model gives it."""
     with matplotlib.rc_context(STYLE):
         fig = Figure(figsize=(7.5, 6), layout="constrained")
         ax = fig.add_subplot()
-        series = {"diffusion_time": ([], "o", "C0", r"photon diffusion time $t_\mathrm{diff}$"),
-                  "kelvin_helmholtz_time": ([], "D", "C3", r"Kelvin–Helmholtz time $t_\mathrm{KH}$")}
+        series = {key: ([], *style) for key, style in CATALOG_TIMESCALES.items()}
         shown = 0
         few = len(summaries) <= 8
         for s in summaries:
@@ -781,7 +854,7 @@ def timescales_vs_mass_figure(summaries: list) -> Figure:
                 continue
             used = False
             for key, (rows, *_rest) in series.items():
-                qt = _quantiles(s, "derived", key)
+                qt = _quantiles_in_years(s, key)
                 if not qt[1] > 0:
                     continue
                 rows.append((qm[1], max(qm[1] - qm[0], 0.0), max(qm[2] - qm[1], 0.0), qt[1],

@@ -65,7 +65,8 @@ STAR_PLOTS = {
     "corner_timescales": ("Posterior of the timescales",
                           "Photon diffusion, Kelvin–Helmholtz and dynamical times and their correlations."),
     "trace": ("Trace of the walkers", "Every walker's position against step; the burn-in is discarded."),
-    "profile": ("Interior profiles", "Posterior bands (68 % and 95 %) of the radial structure."),
+    "profile": ("Interior profiles", "Posterior bands (68 % and 95 %) of the radial structure; convective "
+                "layers shaded (darker where most samples are convective)."),
     "predictive": ("Posterior-predictive check",
                    "Observed R, L, T_eff against the values the posterior predicts."),
     "opacity_comparison": ("Opacity laws compared", "The same star fitted under each opacity law."),
@@ -74,23 +75,32 @@ CATALOG_PLOTS = {
     "hr_diagram": ("Hertzsprung–Russell diagram",
                    "Observed stars with error bars and the posterior-predictive positions.", "hr_diagram.png"),
     "timescales_vs_mass": ("Timescales against mass",
-                           "Photon diffusion time and Kelvin–Helmholtz time with 68 % credible intervals.",
-                           "timescales_vs_mass.png"),
+                           "Photon diffusion time, energy-transport (thermal) time U/L and Kelvin–Helmholtz time, "
+                           "and the main-sequence lifetime where the model has one, with 68 % credible "
+                           "intervals.", "timescales_vs_mass.png"),
 }
 
 # Observations table rows: (key, words, unit); the symbol after the words is the catalogue's (OBS_SHORT).
 OBSERVABLE_ROWS = (("radius", "Radius", "R_sun"), ("luminosity", "Luminosity", "L_sun"),
                    ("teff", "Effective temperature", "K"))
 
-# Catalog table columns: (header symbol, a "_" starting its subscript; unit; where in summary.json; name)
+# Catalog table columns: (header symbol, a "_" starting its subscript; unit; where in summary.json; name).
+# The names are summary.json's (the quantity catalogue's, the keys of `radwalk model --json` without their
+# unit suffix).
 CATALOG_COLUMNS = (
     ("M", "M_sun", "parameters", "mass"),
     ("R", "R_sun", "derived", "radius"),
     ("L", "L_sun", "derived", "luminosity"),
     ("T_eff", "K", "derived", "teff"),
+    ("age", "Gyr", "parameters", "age"),
+    ("t_MS", "Gyr", "derived", "main_sequence_lifetime"),
+    ("X_c", "", "derived", "central_hydrogen"),
     ("t_diff", "yr", "derived", "diffusion_time"),
+    ("t_th", "yr", "derived", "energy_transport_time"),
     ("t_KH", "yr", "derived", "kelvin_helmholtz_time"),
 )
+# Columns shown only when some star has a value (a polytrope has no age, lifetime or evolved centre).
+OPTIONAL_COLUMNS = ("age", "main_sequence_lifetime", "central_hydrogen")
 
 # The page templates, the style sheet and the sorting script (package data).
 TEMPLATES = Path(__file__).with_name("templates")
@@ -411,13 +421,25 @@ def _catalog_plots(out_dir: Path, report_dir: Path, entries) -> dict:
     return {"figures": figures, "note": note}
 
 
-def _catalog_rows(entries) -> list[dict]:
+def _catalog_columns(entries) -> tuple:
+    """The CATALOG_COLUMNS to show: every column but an optional one no star has a value for."""
+    def has(where, key):
+        for e in entries:
+            d = ((e.summary or {}).get(where) or {}).get(key) if e.status != "failed" else None
+            if isinstance(d, dict) and _finite(d.get("p50")):
+                return True
+        return False
+
+    return tuple(c for c in CATALOG_COLUMNS if c[3] not in OPTIONAL_COLUMNS or has(c[2], c[3]))
+
+
+def _catalog_rows(entries, columns=CATALOG_COLUMNS) -> list[dict]:
     """One row of the table of stars per entry; a cell is (sort key, interval dict or None)."""
     rows = []
     for i, e in enumerate(entries, 1):
         s = e.summary or {}
         cells = []
-        for _, _, where, key in CATALOG_COLUMNS:
+        for _, _, where, key in columns:
             d = (s.get(where) or {}).get(key) if e.status != "failed" else None
             cells.append((_sort_value((d or {}).get("p50")), d))
         nwarn = len(s.get("warnings") or []) if e.summary and e.status != "failed" else ""
@@ -430,14 +452,15 @@ def catalog_page(out_dir: Path, report_dir: Path, entries) -> str:
     """The catalog page (index.html) as HTML; draws the catalog plots into ``report_dir`` on the way."""
     run, run_text, problem = read_run_toml(out_dir)
     counts = {s: sum(e.status == s for e in entries) for s in STATUSES}
+    columns = _catalog_columns(entries)
     return _render(
         "catalog.html.j2", script="sort.js",
         run_name=out_dir.resolve().name, n_stars=len(entries),
         counts=[(s, counts[s]) for s in STATUSES if counts[s] or s in ("ok", "not-converged", "failed")],
         run=_run_info(out_dir, run, run_text, problem, entries),
         plots=_catalog_plots(out_dir, report_dir, entries),
-        columns=[(symbol, unit) for symbol, unit, _, _ in CATALOG_COLUMNS],
-        rows=_catalog_rows(entries),
+        columns=[(symbol, unit) for symbol, unit, _, _ in columns],
+        rows=_catalog_rows(entries, columns),
     )
 
 
@@ -454,12 +477,16 @@ def _observed_rows(s: dict) -> list[dict]:
         v, err = o.get("value"), o.get("error")
         d = derived.get(key) or {}
         residual, far = "", False
+        # a luminosity the catalog computed from R and T_eff left the likelihood when both were measured
+        tied = (key == "luminosity" and bool(s.get("luminosity_derived")) and _finite(v)
+                and all(_finite((obs.get(o_) or {}).get("value")) for o_ in ("radius", "teff")))
         if _finite(v) and _finite(err) and err > 0 and _finite(d.get("p50")):
             z = (d["p50"] - v) / err
             residual = f"{z:+.2f} σ".replace("-", "−")
             far = abs(z) > 2  # beyond 2 sigma deserves the eye
         rows.append({"label": label, "symbol": OBS_SHORT[key], "unit": unit, "measured": _finite(v), "value": v,
-                     "error": err, "model": d, "model_map": d.get("map"), "residual": residual, "far": far})
+                     "error": err, "model": d, "model_map": d.get("map"), "residual": residual, "far": far,
+                     "note": "derived from R and T_eff; not used in the fit" if tied else ""})
     return rows
 
 
@@ -593,12 +620,30 @@ def _files(out_dir: Path, e: StarEntry) -> list[tuple[str, str, str]]:
             if (folder / name).is_file()]
 
 
+# The numbers shown large at the top of a star page: (label, where in summary.json, name); each only where
+# the star's model gives it (a polytrope has no age, lifetime, central X of its own or turnover time).
+HEADLINE = (
+    ("Mass", "parameters", "mass"),
+    ("Age", "parameters", "age"),
+    ("Main-sequence lifetime", "derived", "main_sequence_lifetime"),
+    ("Central hydrogen X<sub>c</sub>", "derived", "central_hydrogen"),
+    ("Photon diffusion time", "derived", "diffusion_time"),
+    ("Energy-transport time U/L", "derived", "energy_transport_time"),
+    ("Kelvin–Helmholtz time", "derived", "kelvin_helmholtz_time"),
+    ("Convective core M<sub>cc</sub>/M", "derived", "convective_core_mass_fraction"),
+    ("Envelope base r<sub>ce</sub>/R", "derived", "convective_envelope_base_radius"),
+    ("Convective turnover time", "derived", "convective_turnover_time"),
+)
+
+
 def _headline(s: dict) -> list[tuple]:
-    """(label, interval dict, unit) of the numbers shown large at the top of a star page."""
-    items = [("Mass", (s.get("parameters") or {}).get("mass"), "M_sun"),
-             ("Photon diffusion time", (s.get("derived") or {}).get("diffusion_time"), "yr"),
-             ("Kelvin–Helmholtz time", (s.get("derived") or {}).get("kelvin_helmholtz_time"), "yr")]
-    return [item for item in items if item[1]]
+    """(label as HTML, interval dict, unit) of the numbers shown large at the top of a star page."""
+    items = []
+    for label, where, name in HEADLINE:
+        d = (s.get(where) or {}).get(name)
+        if isinstance(d, dict) and _finite(d.get("p50")):
+            items.append((Markup(label), d, d.get("unit") or ""))
+    return items
 
 
 def star_page(out_dir: Path, e: StarEntry, prev: StarEntry | None, nxt: StarEntry | None) -> str:

@@ -11,7 +11,9 @@ from dataclasses import dataclass
 import numpy as np
 
 BAND_PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)  # the rows of every profile band: 95 % and 68 % and the median
-BAND_FIELDS = ("rho", "T", "kappa", "mean_free_path", "diffusion_time_cumulative")
+# "convective" is 1 where a sample's layer is convective, 0 where radiative: its percentile rows say where the
+# layer is convective in more than 97.5, 84, 50, 16 and 2.5 % of the samples (a row is >= 0.5 there).
+BAND_FIELDS = ("rho", "T", "kappa", "mean_free_path", "diffusion_time_cumulative", "convective")
 
 
 @dataclass
@@ -29,5 +31,5 @@ class FitProducts:
     derived_rows: np.ndarray  # [nderived] rows of ``samples`` the derived quantities were computed on
     derived: dict  # name -> [N] in output units
     r_rel: np.ndarray  # [g]
-    bands: dict  # field -> [5, g]
+    bands: dict  # field -> [5, g] (BAND_FIELDS; a product written before "convective" existed may lack it)
     observed: dict  # name -> (value, err) in R_sun, L_sun, K

@@ -223,6 +223,30 @@ def test_profile_has_five_panels_with_units(figures, products):
     assert np.allclose(median, products.bands["rho"][2], equal_nan=True)
 
 
+def test_convective_spans_of_a_band_row():
+    r = np.linspace(0.0, 1.0, 11)
+    row = np.array([1, 1, 0.4, 0, 0, 0, 0.5, 1, 1, 1, 1], dtype=float)  # a core and an envelope
+    assert np.allclose(plots.convective_spans(row, r), [(0.0, 0.15), (0.55, 1.0)])
+    assert plots.convective_spans(np.zeros(11), r) == []
+
+
+def test_profile_shades_the_convective_layers(figures, products):
+    band = products.bands["convective"]
+    assert band.shape == (5, products.r_rel.size)
+    assert np.all((band >= 0) & (band <= 1)) and np.all(np.diff(band, axis=0) >= 0)  # percentile rows rise
+    fig = figures["profile"]
+    panels = [ax for ax in fig.axes if ax.axison]
+    spans = [p for p in panels[0].patches if p.get_gid() == "convective"]
+    expected = sum(len(plots.convective_spans(band[i], products.r_rel)) for i in (2, 4))  # 50 % and 97.5 %
+    assert len(spans) == expected
+    legend = [t.get_text() for ax in fig.axes if ax.get_legend() for t in ax.get_legend().get_texts()]
+    if expected:
+        assert any(text.startswith("convective in") for text in legend)
+    # a product without the convective band (written before it existed) still draws, with a note
+    old = dataclasses.replace(products, bands={k: v for k, v in products.bands.items() if k != "convective"})
+    assert any("not recorded" in t for t in texts(plots.profile_figure(old)))
+
+
 # ----------------------------------------------------------------------------- predictive check
 
 
@@ -331,8 +355,10 @@ def test_timescales_vs_mass_skips_failed_stars(documents):
     assert r"M_\odot" in ax.get_xlabel() and "yr" in ax.get_ylabel()
     labels = legend_texts(ax)
     assert any("diffusion" in lab for lab in labels) and any("Kelvin" in lab for lab in labels)
+    assert any("energy-transport" in lab for lab in labels)
+    assert not any("main-sequence lifetime" in lab for lab in labels)  # a polytrope fit has no lifetime
     points = sum(len(c.lines[0].get_xdata()) for c in ax.containers)
-    assert points == 2 * 2  # two fitted stars x two timescales; the failed ones have no numbers
+    assert points == 2 * 3  # two fitted stars x three timescales; the failed ones have no numbers
     mass = documents[0]["parameters"]["mass"]["p50"]
     xs = np.concatenate([c.lines[0].get_xdata() for c in ax.containers])
     assert np.isclose(xs, mass).any()
