@@ -191,11 +191,16 @@ class _GridSource:
         built, wanted = grid.header.get("opacity", {}), opacity_identity(opacity)
         # What both identities record must agree (a grid file written before the identity recorded more, such
         # as the hashes of the modules the law imports, is judged on what it has).
-        if any(built[key] != wanted[key] for key in set(built) & set(wanted)) or "law" not in built:
+        differ = sorted(key for key in set(built) & set(wanted) if built[key] != wanted[key])
+        if differ or "law" not in built:
+            what = {"source_sha256": "the law's source", "imports_sha256": "the physics modules the law uses",
+                    "params": "the law's parameters", "law": "the law", "name": "the law's class",
+                    "module": "the law's module", "options": "the law's options"}
+            changed = ", ".join(what.get(key, key) for key in differ) or "the law (not recorded)"
             raise ConfigError(
                 f"track grid {self.grid_file} was built with opacity {built.get('law') or built.get('name')!r} "
-                f"{built.get('params', {})}, but this run uses {wanted.get('law') or wanted.get('name')!r} "
-                f"{wanted.get('params', {})} (or the law's source has changed since): build a grid for it")
+                f"{built.get('params', {})}; this run's {wanted.get('law') or wanted.get('name')!r} "
+                f"{wanted.get('params', {})} differs in {changed}: build a grid for it (radwalk grid build)")
         return grid
 
     def _cached_grid(self, opacity) -> TrackGrid:
