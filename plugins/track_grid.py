@@ -158,18 +158,16 @@ class _GridSource:
         return spec
 
     def _validity(self) -> Validity:
+        # No X range: these stages take X from the grid's composition rule, so the sampled X is never outside.
         if self.grid_file:
             with np.load(self.grid_file, allow_pickle=False) as f:
                 masses, metals = 10.0 ** f["log_mass"], 10.0 ** f["log_z"]
-                X0 = f["X0"] if "X0" in f.files else None
         else:
             spec = self.spec()
             masses, metals = spec.masses(), spec.metallicities()
-            X0 = np.array([spec.hydrogen(z) for z in metals])
-        X = None if X0 is None else (float(np.min(X0)), float(np.max(X0)))
-        return Validity(mass=(float(masses[0]), float(masses[-1])), Z=(float(metals[0]), float(metals[-1])), X=X,
+        return Validity(mass=(float(masses[0]), float(masses[-1])), Z=(float(metals[0]), float(metals[-1])),
                         note="main-sequence stars (core hydrogen burning) interpolated in a grid of solved tracks; "
-                             "X follows the grid's composition rule, not the sampled X")
+                             "X follows the grid's composition rule (Y = Y_p + dY/dZ Z), not the sampled X")
 
     def grid(self, opacity) -> TrackGrid:
         """The grid for the bound opacity law (loaded or built once per process)."""

@@ -41,6 +41,8 @@ def test_options_reach_both_stages_and_state_the_grid_range(stages):
     for comp in (stages.profile, stages.relation):
         assert comp.validity.mass == pytest.approx((0.8, 2.0))
         assert comp.validity.Z == pytest.approx((0.01, 0.02))
+    # the sampled X never reaches them, so no X is ever "outside their range"
+    assert stages.validity_messages(_values(stages, [1.0, 1.5], [0.012, 0.015], [1.0, 1.0], X=0.78)) == []
     # one age parameter, sampled, shared by the two stages
     ages = [p for p in stages.component_params() if p.name == "age"]
     assert len(ages) == 1 and ages[0].sampled and ages[0].upper == AGE_OF_UNIVERSE_GYR
