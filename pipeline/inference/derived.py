@@ -16,7 +16,7 @@ from radwalk.forward.quantities import CATALOGUE, quantity, register_plugin_quan
 from radwalk.inference.posterior import Posterior
 from radwalk.physics.composition import mu
 from radwalk.results.document import NO_REACH_FRACTION, NO_REACH_MODEL_ERRORS, NO_REACH_SIGMA
-from radwalk.results.products import BAND_FIELDS, BAND_PERCENTILES
+from radwalk.results.products import BAND_FIELDS, profile_bands
 
 
 def check_reachable(post: Posterior, theta_map):
@@ -93,7 +93,8 @@ def derive(post: Posterior, samples: np.ndarray):
         field -> [5, g], the :data:`radwalk.results.products.BAND_PERCENTILES` of each profile field
         (over the band samples only, :func:`band_rows`, for such a profile model).
     r_rel : ndarray [g]
-        The profile's grid in r/R.
+        The bands' grid in r/R (the samples' own when they share one, else their median grid:
+        :func:`radwalk.results.products.profile_bands`).
     notes : list of str
         Validity warnings.
     ok : ndarray of bool [N]
@@ -123,8 +124,8 @@ def derive(post: Posterior, samples: np.ndarray):
     for key, v in plugin_quantities(post.stages, prof, vals_band, tr, set(derived)).items():
         derived[key] = v if quick is None else _spread(v, rows, n_ok)
     fields = {"rho": prof.rho, "T": prof.T, "convective": np.asarray(tr.convective, dtype=float), **tr.fields}
-    bands = {f: np.percentile(fields[f], BAND_PERCENTILES, axis=0) for f in BAND_FIELDS}
-    return derived, bands, prof.r[0] / prof.R[0], notes, ok
+    r_rel, bands = profile_bands(prof.r / prof.R[:, None], {f: fields[f] for f in BAND_FIELDS})
+    return derived, bands, r_rel, notes, ok
 
 
 def band_rows(n: int, profile) -> np.ndarray:

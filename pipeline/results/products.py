@@ -16,6 +16,41 @@ BAND_PERCENTILES = (2.5, 16.0, 50.0, 84.0, 97.5)  # the rows of every profile ba
 BAND_FIELDS = ("rho", "T", "kappa", "mean_free_path", "diffusion_time_cumulative", "convective")
 
 
+def profile_bands(r_rel, fields: dict) -> tuple[np.ndarray, dict]:
+    """Percentile bands of radial profiles over samples, on one grid in r/R.
+
+    A polytrope's samples share their grid in r/R; a solved star's mesh is in
+    mass, so each sample's layers sit at their own r/R, and a band taken
+    point by point along the mesh would mix layers at different radii.  Such
+    profiles are interpolated (linearly in r/R) onto the median grid first.
+
+    Parameters
+    ----------
+    r_rel : ndarray [n, g]
+        r/R of each sample's layers, increasing outwards.
+    fields : dict
+        name -> ndarray [n, g], the fields to band.
+
+    Returns
+    -------
+    grid : ndarray [g]
+        The common r/R grid.
+    bands : dict
+        name -> ndarray [5, g], the :data:`BAND_PERCENTILES` of each field on ``grid``.
+    """
+    r_rel = np.atleast_2d(np.asarray(r_rel, dtype=float))
+    if np.allclose(r_rel, r_rel[0], rtol=0.0, atol=1e-12):
+        grid = r_rel[0]
+        return grid, {name: np.percentile(f, BAND_PERCENTILES, axis=0) for name, f in fields.items()}
+    grid = np.maximum.accumulate(np.median(r_rel, axis=0))  # the median of increasing rows increases
+    bands = {}
+    for name, f in fields.items():
+        f = np.atleast_2d(np.asarray(f, dtype=float))
+        on_grid = np.array([np.interp(grid, r_rel[i], f[i]) for i in range(r_rel.shape[0])])
+        bands[name] = np.percentile(on_grid, BAND_PERCENTILES, axis=0)
+    return grid, bands
+
+
 @dataclass
 class FitProducts:
     """Everything the plots and the report need about one fitted star (in memory)."""
