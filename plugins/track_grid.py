@@ -9,20 +9,21 @@ Kelvin-Helmholtz times, the turnover times, central X and the main-sequence
 lifetime), in microseconds per sample instead of seconds per solved star.
 
 The age (Gyr since the zero-age main sequence) is a sampled parameter.  Its
-prior is uniform from 0 to min(t_MS(M, Z), 13.8 Gyr): the declared prior is
-uniform on 0..13.8 Gyr, the age of the universe (13.787 +- 0.020 Gyr, Planck
-Collaboration 2020, A&A 641, A6; from memory), and both components declare
-the support age <= t_MS(M, Z) through the host's support check
-(:meth:`radwalk.forward.stages.StageSet.support`), so the posterior is zero
-past the end of the main sequence and prior draws stay before it.  Because
-the density in age is the same at every mass, the joint prior weights a mass
-by the length min(t_MS, 13.8 Gyr) of its allowed ages: stars above ~1 M_sun,
-which live shorter, get less prior weight than their mass prior alone gives.
+prior is uniform from 0 to min(t_MS(M, Z), 13.8 Gyr) at every mass and Z: the
+declared prior is uniform on 0..13.8 Gyr, the age of the universe
+(13.787 +- 0.020 Gyr, Planck Collaboration 2020, A&A 641, A6; from memory);
+both components declare the support age <= t_MS(M, Z) through the host's
+support check (:meth:`radwalk.forward.stages.StageSet.support`), so the
+posterior is zero past the end of the main sequence and prior draws stay
+before it; and the relation adds the joint prior term -log min(t_MS, 13.8 Gyr)
+(:meth:`TrackGridRelation.log_prior_density`), so that a short-lived mass is
+not down-weighted against a long-lived one: the mass prior stays the one declared.
 
 Composition: a grid holds one initial X for each Z (its composition rule,
-Y = Y_p + dY/dZ Z by default).  These components read Z from the sample and
-take X from the grid's rule; the sampled X does not reach them (it still
-enters the [Fe/H] prior and the mean molecular weight of the fit's table).
+Y = Y_p + dY/dZ Z by default).  Both components declare it
+(``hydrogen_fraction``), so a fit computes X from Z instead of sampling it, and
+the [Fe/H] prior, the mean molecular weight and the reported X are the grid
+star's.
 
 The grid comes from :func:`radwalk.forward.model_grid.cached_grid` for the
 bound opacity law and the default :class:`~radwalk.forward.model_grid.GridSpec`
@@ -245,6 +246,10 @@ class _GridSource:
         with np.errstate(invalid="ignore"):
             return np.isfinite(life) & (age >= 0.0) & (age <= np.minimum(life, AGE_OF_UNIVERSE_GYR))
 
+    def hydrogen_fraction(self, Z, opacity=None, age=0.0):
+        """Initial X of the grid's star at metallicity Z (its composition rule), [n]."""
+        return hydrogen_of(self.grid(opacity), Z)
+
     def support_note(self, M, X, Z, opacity=None, age=0.0) -> str:
         """Why the first sample lies outside the support, in words."""
         m, z, a = float(np.ravel(M)[0]), float(np.ravel(_flat(Z, 1))[0]), float(np.ravel(_flat(age, 1))[0])
@@ -288,6 +293,18 @@ class TrackGridRelation(_GridSource):
         """
         _, values, _ = self._at(M, Z, age, opacity)
         return values["radius"], values["luminosity"]
+
+    def log_prior_density(self, M, X, Z, opacity=None, age=0.0):
+        """-log min(t_MS(M, Z), 13.8 Gyr), [n]: with the support, the age prior is uniform up to that limit.
+
+        Declared by the relation only (the profile shares the age), so that the term counts once.  Without
+        it the declared density 1/13.8 Gyr at every mass would weight each mass by the length of its
+        allowed ages and pull the mass posterior toward long-lived, low masses.
+        """
+        M = np.atleast_1d(np.asarray(M, dtype=float)).reshape(-1)
+        life = self.grid(opacity).lifetime_at(M, _flat(Z, M.size)) / GYR
+        with np.errstate(invalid="ignore", divide="ignore"):
+            return -np.log(np.minimum(life, AGE_OF_UNIVERSE_GYR) / AGE_OF_UNIVERSE_GYR)
 
     def unreachable_note(self, observed, opacity=None, Z=(0.0, 1.0)) -> str | None:
         """Whether the observed star lies off the main sequence for every allowed metallicity, in words.

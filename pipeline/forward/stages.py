@@ -189,6 +189,54 @@ class StageSet:
             kwargs["opacity"] = self.bound_opacity(values)
         return method(M, X, Z, **kwargs)
 
+    def hydrogen_stage(self) -> str | None:
+        """The stage whose component sets X from Z (an optional ``hydrogen_fraction`` method), or None.
+
+        A component whose stars follow one composition rule (a track grid: one initial X per Z) declares
+        ``hydrogen_fraction(Z, **params) -> X [n]`` (``opacity=`` if it takes it); the posterior then does not
+        sample X but computes it from Z, so the [Fe/H] prior, the mean molecular weight and the reported X are
+        those of the star the model computed.
+        """
+        for s in STAGES:
+            if callable(getattr(getattr(self, s), "hydrogen_fraction", None)):
+                return s
+        return None
+
+    def hydrogen_fraction(self, values: dict) -> np.ndarray:
+        """X of the samples from their Z by the rule of :meth:`hydrogen_stage`, [n]."""
+        stage = self.hydrogen_stage()
+        comp = getattr(self, stage)
+        Z = np.atleast_1d(np.asarray(values["Z"], dtype=float))
+        kwargs = self.stage_kwargs(stage, values)
+        try:
+            import inspect
+
+            if "opacity" in inspect.signature(comp.hydrogen_fraction).parameters:
+                kwargs["opacity"] = self.bound_opacity(values)
+        except (TypeError, ValueError):
+            pass
+        return np.asarray(comp.hydrogen_fraction(Z, **kwargs), dtype=float)
+
+    def prior_density_stages(self) -> list[str]:
+        """The stages whose component adds a joint prior density (an optional ``log_prior_density`` method)."""
+        return [s for s in STAGES if callable(getattr(getattr(self, s), "log_prior_density", None))]
+
+    def log_prior_density(self, values: dict) -> np.ndarray:
+        """Sum of the components' joint prior terms, [n] (0 when none declares one).
+
+        A component may declare ``log_prior_density(M, X, Z, **params) -> [n]`` (same arguments as
+        ``support``): a log density its parameters have given the star's, added to the declared priors.  A
+        prior uniform in age up to a mass-dependent lifetime is the declared uniform prior, the support
+        age <= lifetime, and the term -log(lifetime), which keeps every mass's ages summing to one.
+        """
+        n = np.atleast_1d(np.asarray(values["mass"], dtype=float)).size
+        total = np.zeros(n)
+        for stage in self.prior_density_stages():
+            with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
+                term = self._component_call(stage, getattr(self, stage).log_prior_density, values)
+            total = total + np.broadcast_to(np.asarray(term, dtype=float), (n,))
+        return total
+
     def support_stages(self) -> list[str]:
         """The stages whose component declares a support (an optional ``support`` method)."""
         return [s for s in STAGES if callable(getattr(getattr(self, s), "support", None))]

@@ -66,7 +66,16 @@ class Posterior:
         self.independent: list[tuple] = []
         elsewhere = {p.name for s in ("opacity", "relation", "likelihood") for p in getattr(stages, s).params}
         profile_names = {p.name for p in stages.profile.params} - elsewhere
+        # X set by a component's composition rule (a track grid) is computed from Z, never sampled.
+        self.hydrogen_tied = stages.hydrogen_stage() is not None
+        if self.hydrogen_tied and ("X" in numeric or "X" in config.priors):
+            comp = getattr(stages, stages.hydrogen_stage())
+            raise ConfigError(f"X cannot be set or given a prior with {stages.hydrogen_stage()} {comp.name!r}: "
+                              "its stars take X from Z by their composition rule; free X with the 'solved' "
+                              "profile and relation")
         for p in stages.all_params():
+            if p.name == "X" and self.hydrogen_tied:
+                continue
             if p.name in numeric and p.name not in config.priors:
                 self.fixed[p.name] = p.check(numeric[p.name])
             elif p.sampled or p.name in config.priors:
@@ -91,6 +100,7 @@ class Posterior:
         self.ndim = len(self.names)
         self._lik_names = [p.name for p in stages.likelihood.params]
         self._has_support = bool(stages.support_stages())
+        self._has_density = bool(stages.prior_density_stages())
 
     # -- parameter vectors ----------------------------------------------
     def values(self, theta) -> dict:
@@ -107,6 +117,9 @@ class Posterior:
             vals[name] = theta[:, j]
         for j, (p, _) in enumerate(self.independent, start=self.ndim):
             vals[p.name] = theta[:, j] if theta.shape[1] > j else p.default
+        if self.hydrogen_tied:
+            vals["Z"] = np.broadcast_to(np.asarray(vals["Z"], dtype=float), (theta.shape[0],))
+            vals["X"] = self.stages.hydrogen_fraction(vals)
         return vals
 
     def draw_independent(self, rng: np.random.Generator, size: int, theta=None) -> np.ndarray:
@@ -148,6 +161,11 @@ class Posterior:
                 inside = np.zeros_like(ok)
                 inside[ok] = self.stages.support(sub)
                 lp = np.where(inside, lp, -np.inf)
+        if self._has_density:
+            ok = np.isfinite(lp)
+            if ok.any():
+                sub = vals if ok.all() else {kk: (v[ok] if np.ndim(v) else v) for kk, v in vals.items()}
+                lp[ok] = lp[ok] + self.stages.log_prior_density(sub)
         return lp
 
     def predict(self, theta) -> dict:

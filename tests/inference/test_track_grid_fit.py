@@ -10,7 +10,7 @@ import numpy as np
 import pytest
 
 from radwalk import constants as k
-from radwalk.errors import ModelError
+from radwalk.errors import ConfigError, ModelError
 from radwalk.host.config import RunConfig, SamplerConfig
 from radwalk.host.params import Prior
 from radwalk.inference.derived import band_rows, check_reachable, derive
@@ -128,3 +128,45 @@ def test_whole_fit_with_the_track_grid_stages(small_track_grid, truth, rng):
     assert "main_sequence_lifetime" in summary["derived"] and "age" in summary["parameters"]
     lo, hi = np.percentile(products.samples[:, products.param_names.index("mass")], [2.5, 97.5])
     assert lo <= truth["mass"] <= hi
+
+
+def test_x_follows_z_by_the_grid_rule(small_track_grid):
+    cfg = _config(small_track_grid)
+    stages = stages_for(cfg)
+    post = Posterior(stages, Star.from_user_units("x", 1.2, 0.03, 2.0, 0.1).observations(), cfg,
+                     feh=(0.0, 0.05))
+    assert "X" not in post.names and "X" not in post.fixed
+    theta = np.zeros((2, post.ndim))
+    for j, name in enumerate(post.names):
+        theta[:, j] = {"mass": [1.2, 1.5], "Z": [0.012, 0.019], "age": [1.0, 0.5]}[name]
+    vals = post.values(theta)
+    grid = stages.relation.grid(stages.bound_opacity(stages.defaults()))
+    np.testing.assert_allclose(vals["X"], hydrogen_of(grid, np.array([0.012, 0.019])), rtol=1e-12)
+    with pytest.raises(ConfigError, match="composition rule"):
+        Posterior(stages, star_obs(), RunConfig(stages=cfg.stages, settings={**cfg.settings, "X": 0.7}))
+
+
+def star_obs():
+    return Star.from_user_units("x", 1.2, 0.03, 2.0, 0.1).observations()
+
+
+def test_age_prior_is_uniform_up_to_each_mass_lifetime(small_track_grid):
+    """Every mass gets the same total prior weight: the density in age is 1 / min(t_MS, 13.8 Gyr)."""
+    cfg = _config(small_track_grid)
+    stages = stages_for(cfg)
+    post = Posterior(stages, star_obs(), cfg)
+    grid = stages.relation.grid(stages.bound_opacity(stages.defaults()))
+    for mass in (1.0, 1.9):
+        life = float(grid.lifetime_at(np.array([mass * k.M_SUN]), np.array([0.014]))[0]) / GYR
+        ages = np.linspace(0.0, 14.0, 4001)
+        theta = np.zeros((ages.size, post.ndim))
+        for j, name in enumerate(post.names):
+            theta[:, j] = {"mass": mass, "Z": 0.014, "age": ages}[name]
+        p = np.exp(post.log_prior(theta) - post.log_prior(theta[:1])[0])
+        weight = np.trapezoid(p, ages) * np.exp(post.log_prior(theta[:1])[0])
+        if mass == 1.0:
+            first = weight
+        else:
+            # the mass prior is uniform here: equal weights up to the step of the age integration
+            assert weight == pytest.approx(first, rel=2 * 14.0 / 4000 / min(life, 13.8))
+        assert np.all(p[ages > min(life, 13.8) + 1e-9] == 0)
