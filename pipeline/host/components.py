@@ -118,6 +118,15 @@ class Component(Protocol):
     ``support_note(M, X, Z, **params) -> str``
         Why the first sample lies outside the support, in words (for
         ``radwalk model``'s refusal); a generic message otherwise.
+    ``log_prior_density(M, X, Z, **params) -> ndarray [n]``
+        A joint log prior term of its parameters given the star's, added to
+        the declared priors inside the support.  An age uniform up to a
+        mass-dependent lifetime is a uniform Prior, the support, and the
+        term -log(lifetime) (declare it in one stage only: terms add up).
+    ``hydrogen_fraction(Z, **params) -> ndarray [n]``
+        X as a function of Z, for a model whose stars follow one composition
+        rule (a grid of tracks); a fit then computes X instead of sampling it
+        (:meth:`radwalk.forward.stages.StageSet.hydrogen_fraction`).
 
     Optional, for profiles
     ----------------------

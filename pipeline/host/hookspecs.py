@@ -21,7 +21,8 @@ keyword): the region of the star's and its parameters' values where its model
 exists and its prior is non-zero, such as an age no greater than the
 main-sequence lifetime of the mass.  The posterior is -inf outside it, prior
 draws stay inside it, and ``radwalk check-plugin`` checks it (bool [n], True
-at the default parameters).  The other optional methods (a profile's
+at the default parameters).  The other optional methods (a joint prior term
+``log_prior_density``, X from Z ``hydrogen_fraction``, a profile's
 ``quantities`` and ``band_samples``, a relation's ``unreachable_note``) are
 described in :class:`radwalk.host.components.Component`.
 """
