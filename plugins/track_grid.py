@@ -100,7 +100,19 @@ _OPTIONS = (
     Option("grid", "path of a track-grid file (radwalk grid build) to use instead of the cache's grid"),
     Option("grid_mass", "build only the tracks covering this mass range, 'LO..HI' in M_sun"),
     Option("grid_z", "build only the tracks covering this metallicity range, 'LO..HI'"),
+    Option("band_stars", f"posterior samples whose radial structure is solved for the profile bands (default "
+                         f"{BAND_SAMPLES}; each costs ~2 s of CPU)"),
 )
+
+
+def _count(text, name: str) -> int:
+    try:
+        value = int(str(text).strip())
+    except ValueError:
+        value = 0
+    if value < 1:
+        raise ConfigError(f"option {name} = {text!r}: give a whole number of at least 1")
+    return value
 
 
 def _range(text, name: str) -> tuple[float, float] | None:
@@ -135,10 +147,11 @@ class _GridSource:
 
     options = _OPTIONS
 
-    def __init__(self, grid=None, grid_mass=None, grid_z=None):
+    def __init__(self, grid=None, grid_mass=None, grid_z=None, band_stars=None):
         self.grid_file = str(Path(grid).expanduser().resolve()) if grid else None
         self.mass_range = _range(grid_mass, "grid_mass")
         self.z_range = _range(grid_z, "grid_z")
+        self.band_samples = BAND_SAMPLES if band_stars is None else _count(band_stars, "band_stars")
         self.options_key = (self.grid_file, self.mass_range, self.z_range)
         self.validity = self._validity()
 
@@ -147,7 +160,8 @@ class _GridSource:
         for key in options:
             if key not in known:
                 raise ConfigError(f"{self.name} has no option {key!r}; options: {', '.join(known)}")
-        merged = {"grid": self.grid_file, "grid_mass": _text(self.mass_range), "grid_z": _text(self.z_range)}
+        merged = {"grid": self.grid_file, "grid_mass": _text(self.mass_range), "grid_z": _text(self.z_range),
+                  "band_stars": self.band_samples}
         merged.update({key: v for key, v in options.items() if v is not None})
         return type(self)(**merged)
 
@@ -390,7 +404,6 @@ class TrackGridProfile(_GridSource):
                    "tracks, radial structure solved (evolved from zero age) for the samples the bands need")
     params = _params()
     sets_radius = True  # the solved structure's own R and L go with its profile
-    band_samples = BAND_SAMPLES
 
     def quantities(self, M, X, Z, opacity=None, age=0.0) -> dict:
         """The interior's scalars at (M, Z, age) from the grid, in the quantity catalogue's computed units.
