@@ -479,7 +479,9 @@ def profile_figure(products: FitProducts) -> Figure:
         zones = ("convective zones: none in any sample" if convective is not None and not shades
                  else "" if convective is not None else "convective zones: not recorded")
         text = (f"star {plain(products.star.id)}\nopacity law: {plain(products.opacity)}\n"
-                f"bands over {len(next(iter(products.derived.values()), []))} posterior samples\n"
+                # a profile model that solves its interiors does so for a few evenly spaced samples only, so the
+                # number of samples behind the bands is not that of the derived quantities: none is given
+                "bands over the posterior samples\n"
                 + (f"{zones}\n" if zones else "")
                 + r"$t_\mathrm{diff}(<r) = c^{-1}\int_0^r \kappa\rho\, r'\,\mathrm{d}r'$")
         info.text(0.0, 0.45, text, transform=info.transAxes, va="top", fontsize=10)
@@ -877,7 +879,7 @@ def timescales_vs_mass_figure(summaries: list) -> Figure:
                                 ms=5, color=colour, mfc=face, lw=1, capsize=2, label=lab)
         ax.set_xlabel(r"$M\,[M_\odot]$ (posterior median, 16–84 %)")
         ax.set_ylabel(r"timescale $[\mathrm{yr}]$")
-        ax.set_title("transport timescales against mass")
+        ax.set_title("timescales against mass")
         if not shown:
             _empty(ax, "no fitted star to show")
             return fig

@@ -471,23 +471,35 @@ def _observed_rows(s: dict) -> list[dict]:
     """Rows of the observations table: observed value and error, the model's posterior and the residual."""
     obs = s.get("observed") or {}
     derived = s.get("derived") or {}
+    fixed = s.get("fixed") or {}
     rows = []
     for key, label, unit in OBSERVABLE_ROWS:
         o = obs.get(key) or {}
         v, err = o.get("value"), o.get("error")
         d = derived.get(key) or {}
         residual, far = "", False
+        # the residual in the fit's own sigma: the measurement and the model's error in quadrature
+        floor = fixed.get(f"floor_{key}")
+        sigma = math.hypot(err, floor * v) if _finite(floor) and _finite(err) and _finite(v) else err
         # a luminosity the catalog computed from R and T_eff left the likelihood when both were measured
         tied = (key == "luminosity" and bool(s.get("luminosity_derived")) and _finite(v)
                 and all(_finite((obs.get(o_) or {}).get("value")) for o_ in ("radius", "teff")))
-        if _finite(v) and _finite(err) and err > 0 and _finite(d.get("p50")):
-            z = (d["p50"] - v) / err
+        if _finite(v) and _finite(sigma) and sigma > 0 and _finite(d.get("p50")):
+            z = (d["p50"] - v) / sigma
             residual = f"{z:+.2f} σ".replace("-", "−")
             far = abs(z) > 2  # beyond 2 sigma deserves the eye
         rows.append({"label": label, "symbol": OBS_SHORT[key], "unit": unit, "measured": _finite(v), "value": v,
                      "error": err, "model": d, "model_map": d.get("map"), "residual": residual, "far": far,
                      "note": "derived from R and T_eff; not used in the fit" if tied else ""})
     return rows
+
+
+def _model_errors(s: dict) -> str:
+    """The likelihood's model errors of the fit as words ("R 10.6 %, L 26.8 %, ..."), or "" without any."""
+    fixed = s.get("fixed") or {}
+    parts = [f"{OBS_SHORT[key]} {100 * fixed[f'floor_{key}']:.3g} %" for key, _, _ in OBSERVABLE_ROWS
+             if _finite(fixed.get(f"floor_{key}"))]
+    return ", ".join(parts)
 
 
 def _feh(s: dict) -> tuple | None:
@@ -650,7 +662,8 @@ def star_page(out_dir: Path, e: StarEntry, prev: StarEntry | None, nxt: StarEntr
     """A star's page as HTML (star.html.j2); a failed star shows its reason and observations only."""
     s = e.summary or {}
     context = {"star": e, "prev": prev, "following": nxt, "reason": str(s.get("reason") or ""),
-               "observed": _observed_rows(s), "feh": _feh(s), "files": _files(out_dir, e)}
+               "observed": _observed_rows(s), "feh": _feh(s), "files": _files(out_dir, e),
+               "model_errors": _model_errors(s)}
     if e.status != "failed":
         sampler = s.get("sampler") or {}
         steps, tau = sampler.get("steps"), sampler.get("tau_max")

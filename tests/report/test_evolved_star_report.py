@@ -17,6 +17,7 @@ from radwalk.forward.quantities import CATALOGUE
 from radwalk.host.config import RunConfig, SamplerConfig
 from radwalk.inference.fit import fit_star
 from radwalk.inference.star import Star
+from radwalk.plugins.likelihoods import MODEL_ERROR
 from radwalk.report import figures as plots
 from radwalk.report.pages import star_page_name, write_report
 from radwalk.results.document import document
@@ -61,7 +62,9 @@ def page_text(path) -> str:
 def star_page(run, star_id):
     return run / "report" / star_page_name(safe_folder_name(star_id))
 
-SMALL = RunConfig(sampler=SamplerConfig(walkers=8, chunk=100, max_steps=200, derived_samples=60,
+
+SMALL = RunConfig(stages={"profile": "polytrope", "relation": "homology"},
+                  sampler=SamplerConfig(walkers=8, chunk=100, max_steps=200, derived_samples=60,
                                         optimizer_starts=2))
 GRID_ID = "Evolved one"
 POLY_ID = "Polytrope two"
@@ -85,7 +88,8 @@ def grid_document():
     return document(GRID_ID, "ok", "", {"radius": (1.2234, 0.0053), "luminosity": (1.521, 0.015),
                                         "teff": (5795.0, 19.0)}, (0.22, 0.05), 1, 10.0, luminosity_derived=True,
                     opacity="combined", stages={"profile": "track-grid", "relation": "track-grid"},
-                    parameters=params, fixed={}, derived=derived,
+                    parameters=params, fixed={f"floor_{key}": MODEL_ERROR[key] for key in MODEL_ERROR},
+                    derived=derived,
                     sampler={"walkers": 24, "steps": 3000, "converged": True, "tau_max": 40.0},
                     ppc_pvalue=0.4, unconstrained=[], warnings=[])
 
@@ -164,6 +168,15 @@ def test_star_page_headline_and_derived_rows(run):
                  "convective_envelope_base_radius", "convective_turnover_time"):
         assert name in text  # the derived table names every quantity
     assert "(derived from R and T_eff; not used in the fit)" in text
+    # residuals in the fit's sigma: R 1.22 against 1.2234 +/- 0.0053 with a 10.6 % model error is -0.03 sigma
+    sigma = math.hypot(0.0053, MODEL_ERROR["radius"] * 1.2234)
+    assert f"{(1.22 - 1.2234) / sigma:+.2f} σ".replace("-", "−") in text
+    assert "the model's own error (R 10.6 %, L 26.8 %, T_eff 4.3 % of the value)" in text
+
+
+def test_a_real_fit_records_its_model_errors(run):
+    assert summary(run, POLY_ID)["fixed"] == pytest.approx(
+        {**summary(run, POLY_ID)["fixed"], **{f"floor_{key}": v for key, v in MODEL_ERROR.items()}})
 
 
 def test_polytrope_star_page_shows_what_it_has(run):

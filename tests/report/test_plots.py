@@ -28,9 +28,12 @@ from radwalk.results.files import dumps  # noqa: E402
 
 PNG_SIGNATURE = b"\x89PNG\r\n\x1a\n"
 STAR_KINDS = {"corner_parameters", "corner_timescales", "trace", "profile", "predictive"}
-CONFIG = RunConfig(sampler=SamplerConfig(walkers=16, chunk=200, max_steps=600, derived_samples=300))
-SMALL = RunConfig(sampler=SamplerConfig(walkers=8, chunk=100, max_steps=200, derived_samples=100,
-                                        optimizer_starts=2))
+# The quick textbook stages, named: these tests are about the figures, and a polytrope fit takes seconds.
+QUICK_STAGES = {"profile": "polytrope", "relation": "homology"}
+CONFIG = RunConfig(stages=QUICK_STAGES,
+                   sampler=SamplerConfig(walkers=16, chunk=200, max_steps=600, derived_samples=300))
+SMALL = RunConfig(stages=QUICK_STAGES,
+                  sampler=SamplerConfig(walkers=8, chunk=100, max_steps=200, derived_samples=100, optimizer_starts=2))
 
 
 @pytest.fixture(scope="module")

@@ -53,7 +53,9 @@ TWO_LAWS = ("combined", "kramers")
 PROVENANCE = {"radwalk": __version__, "numpy": np.__version__, "seed": 1, "executor": "local", "workers": 1,
               "first_started": "2026-01-02T03:04:05Z", "started": "2026-01-02T03:04:05Z",
               "finished": "2026-01-02T03:05:00Z"}
-FAST = RunConfig(sampler=SamplerConfig(walkers=16, chunk=200, max_steps=600, derived_samples=200))
+# The quick textbook stages, named: these tests are about the report, and a polytrope fit takes seconds.
+QUICK_STAGES = {"profile": "polytrope", "relation": "homology"}
+FAST = RunConfig(stages=QUICK_STAGES, sampler=SamplerConfig(walkers=16, chunk=200, max_steps=600, derived_samples=200))
 
 
 @pytest.fixture(scope="module")
@@ -62,7 +64,8 @@ def run_dir(tmp_path_factory):
     out = tmp_path_factory.mktemp("run")
     results = {}
     for star in STARS:
-        config = FAST.with_changes(stages={"opacity": TWO_LAWS}) if star.id == "Gamma two laws" else FAST
+        two = star.id == "Gamma two laws"
+        config = FAST.with_changes(stages={**QUICK_STAGES, "opacity": TWO_LAWS}) if two else FAST
         plots = star.id == "Alpha one"
         results[star.id] = fit_star(star, config, out / "stars" / safe_folder_name(star.id), plots=plots)
     assert results["a/b"].status == "failed"
