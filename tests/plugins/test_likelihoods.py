@@ -19,6 +19,8 @@ from radwalk.inference.star import Star
 from radwalk.plugins import likelihoods as lk
 
 DOC = Path(__file__).resolve().parents[2] / "docs" / "likelihood.md"
+# Named stages with the sampled parameters mass, X, Z: the likelihood does not depend on the model behind it
+QUICK = RunConfig(stages={"profile": "polytrope", "relation": "homology"})
 
 
 def test_default_floors_are_the_model_error_budget():
@@ -100,12 +102,12 @@ def test_tiny_measurement_error_leaves_the_model_error():
 
 
 def test_a_prior_on_a_model_error_is_refused_a_fixed_value_is_not():
-    stages = stages_for(RunConfig())
+    stages = stages_for(QUICK)
     star = Star.from_user_units("s", 1.0, 0.02, 1.0, 0.05, 5772.0, 60.0)
-    cfg = RunConfig(priors={"floor_luminosity": Prior("uniform", 0.0, 0.5)})
+    cfg = QUICK.with_changes(priors={"floor_luminosity": Prior("uniform", 0.0, 0.5)})
     with pytest.raises(ConfigError, match="floor_luminosity.*fixed setting.*cannot be sampled"):
         Posterior(stages, star.observations(), cfg)
-    post = Posterior(stages, star.observations(), RunConfig(settings={"floor_luminosity": 0.5}))
+    post = Posterior(stages, star.observations(), QUICK.with_changes(settings={"floor_luminosity": 0.5}))
     assert post.fixed["floor_luminosity"] == 0.5 and "floor_luminosity" not in post.names
 
 
@@ -119,13 +121,13 @@ def _sun_like(derived, luminosity=True, radius=True):
 
 
 def test_a_derived_luminosity_leaves_the_likelihood():
-    stages = stages_for(RunConfig())
+    stages = stages_for(QUICK)
     derived, measured, without = _sun_like(True), _sun_like(False), _sun_like(False, luminosity=False)
     assert not derived.luminosity_used and measured.luminosity_used
     assert np.isnan(derived.observations().values["luminosity"])
     assert derived.user_values()["luminosity"] == measured.user_values()["luminosity"]  # kept in the record
     theta = np.array([[1.05, 0.70, 0.015], [1.2, 0.72, 0.02]])  # mass, X, Z
-    lls = [Posterior(stages, s.observations(), RunConfig()).log_likelihood(theta) for s in (derived, measured,
+    lls = [Posterior(stages, s.observations(), QUICK).log_likelihood(theta) for s in (derived, measured,
                                                                                              without)]
     assert np.array_equal(lls[0], lls[2]) and not np.allclose(lls[0], lls[1])
     assert "left out of the likelihood" in derived.luminosity_note()
