@@ -565,17 +565,20 @@ class TrackGrid:
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             return self._interpolate(M, Z, age, n)
 
-    def _interpolate(self, M, Z, age, n):
-        lm = np.log10(M / const.M_SUN)
-        lz = np.log10(Z)
-        im, wm, lm_w, in_m = self._m.locate(lm)
-        iz, wz, lz_w, in_z = self._z.locate(lz)
-        nz, npz = self.shape[1], self.shape[2]
+    def _lifetimes(self, M, Z, n):
+        """Stencils in (log M, log Z) and the interpolated lifetime t_MS, s, [n]."""
+        im, wm, lm_w, in_m = self._m.locate(np.log10(M / const.M_SUN))
+        iz, wz, lz_w, in_z = self._z.locate(np.log10(Z))
         wc = (wm[:, :, None] * wz[:, None, :]).reshape(n, -1)  # [n, sm * sz]
-        life_nodes = self._log_life[(im * nz + iz)[:, None] + self._off_mz]
+        life_nodes = self._log_life[(im * self.shape[1] + iz)[:, None] + self._off_mz]
         life = 10.0 ** np.einsum("nk,nk->n", wc, life_nodes)
+        return im, iz, wc, lm_w, lz_w, in_m & in_z, life
+
+    def _interpolate(self, M, Z, age, n):
+        im, iz, wc, lm_w, lz_w, in_mz, life = self._lifetimes(M, Z, n)
+        nz, npz = self.shape[1], self.shape[2]
         phase = age / life
-        inside = in_m & in_z & np.isfinite(life) & (age >= 0.0) & (phase <= 1.0 + 1e-9)
+        inside = in_mz & np.isfinite(life) & (age >= 0.0) & (phase <= 1.0 + 1e-9)
         u = np.fmin(np.fmax(phase, 0.0), 1.0) * (npz - 1)
         ip = np.minimum(u.astype(np.intp), npz - 2)
         fp = u - ip
@@ -594,8 +597,17 @@ class TrackGrid:
         return out, inside
 
     def lifetime_at(self, M, Z):
-        """Interpolated main-sequence lifetime t_MS(M, Z), s, [n] (NaN outside the grid)."""
-        return self(M, Z, np.zeros(np.size(M)))[0]["main_sequence_lifetime"]
+        """Interpolated main-sequence lifetime t_MS(M, Z), s, [n] (NaN outside the grid).
+
+        Only the lifetime is interpolated (the support check and the age prior call this on every posterior
+        evaluation, beside the relation's full interpolation).
+        """
+        M = np.asarray(M, dtype=float).reshape(-1)
+        n = M.size
+        Z = np.broadcast_to(np.asarray(Z, dtype=float).reshape(-1), (n,)) if np.ndim(Z) else np.full(n, float(Z))
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            *_, in_mz, life = self._lifetimes(M, Z, n)
+        return np.where(in_mz & np.isfinite(life), life, np.nan)
 
     # ------------------------------------------------------------------ pieces and files
     def node(self, i: int, j: int) -> dict:
