@@ -1,11 +1,12 @@
 """Writes the invented demo catalog (demo_stars.ecsv) and its truths (truths.ecsv).
 
 The Quillwater field is made up: 24 invented stars with invented names.
-Each regular star gets a mass (spread evenly in log M over 0.55-10 M_sun), a hydrogen
-fraction X and a metal fraction Z; radius, luminosity and T_eff are what the
-default stages (polytrope, combined opacity, homology relation, Gaussian
-likelihood) predict for them, solved directly rather than from the grid the
-sampler interpolates.  The observed values are those plus Gaussian noise of
+Each regular star gets a mass (spread evenly in log M over 0.7-7 M_sun), a metal
+fraction Z (log-uniform over 0.004-0.03; X follows from the default composition
+rule Y = Y_p + dY/dZ Z) and an age (uniform over 5-90 % of its main-sequence
+life, or of 13.8 Gyr for the long-lived); radius, luminosity and T_eff are what
+the default stages (the track grid computed with the combined opacity, Gaussian
+likelihood) predict for them.  The observed values are those plus Gaussian noise of
 the quoted relative errors (2-10 %).  A few rows are awkward on purpose (see
 README.md): T_eff withheld, a large uncertainty, a giant-like star that no
 main-sequence model reaches, and an id that is unsafe as a file name.
@@ -30,6 +31,7 @@ from radwalk import constants as k  # noqa: E402
 from radwalk.forward.stages import StageSet  # noqa: E402
 from radwalk.host.registry import Registry  # noqa: E402
 from radwalk.physics.composition import X_SUN, Z_SUN  # noqa: E402
+from radwalk.plugins.track_grid import AGE_OF_UNIVERSE_GYR  # noqa: E402
 
 SEED = 20261201
 N_REGULAR = 23
@@ -46,23 +48,32 @@ def _round(x: float, digits: int = 4) -> float:
     return float(f"{x:.{digits}g}")
 
 
-def forward(stages: StageSet, mass, X, Z):
-    """R (R_sun), L (L_sun), T_eff (K) the default stages predict, solved directly."""
+def forward(stages: StageSet, mass, Z, age):
+    """X, R (R_sun), L (L_sun), T_eff (K) and t_MS (Gyr) of the default stages at (M, Z, age)."""
     vals = stages.defaults()
-    vals.update(mass=np.atleast_1d(mass), X=np.atleast_1d(X), Z=np.atleast_1d(Z))
-    p = stages.predict(vals, use_grid=False)
-    return p["radius"] / k.R_SUN, p["luminosity"] / k.L_SUN, p["teff"]
+    vals.update(mass=np.atleast_1d(mass), Z=np.atleast_1d(Z), age=np.atleast_1d(age))
+    vals["X"] = stages.hydrogen_fraction(vals)
+    p = stages.predict(vals)
+    q = stages.quick_quantities(vals)
+    return vals["X"], p["radius"] / k.R_SUN, p["luminosity"] / k.L_SUN, p["teff"], q["main_sequence_lifetime"]
+
+
+def lifetimes(stages: StageSet, mass, Z):
+    """Main-sequence lifetimes (Gyr) of the default stages, [n]."""
+    return forward(stages, mass, Z, np.zeros(np.size(mass)))[4]
 
 
 def make(seed: int = SEED):
     rng = np.random.default_rng(seed)
     stages = StageSet.build(Registry(entry_points=False), {})
-    # Evenly spread in log M with a little jitter, so every part of 0.55-10 M_sun has stars.
-    step = (np.log(10.0) - np.log(0.55)) / N_REGULAR
-    masses = np.exp(np.log(0.55) + step * (np.arange(N_REGULAR) + rng.uniform(0.1, 0.9, N_REGULAR)))
-    X = rng.uniform(0.64, 0.76, N_REGULAR)
-    Z = np.exp(rng.uniform(np.log(0.003), np.log(0.03), N_REGULAR))
-    R, L, T = forward(stages, masses, X, Z)
+    # Evenly spread in log M with a little jitter, so every part of 0.7-7 M_sun has stars.
+    step = (np.log(7.0) - np.log(0.7)) / N_REGULAR
+    masses = np.exp(np.log(0.7) + step * (np.arange(N_REGULAR) + rng.uniform(0.1, 0.9, N_REGULAR)))
+    Z = np.exp(rng.uniform(np.log(0.004), np.log(0.03), N_REGULAR))
+    # Ages over 5-90 % of the life the prior allows (the main sequence, at most the age of the universe).
+    life = np.minimum(lifetimes(stages, masses, Z), AGE_OF_UNIVERSE_GYR)
+    ages = life * rng.uniform(0.05, 0.90, N_REGULAR)
+    X, R, L, T, _ = forward(stages, masses, Z, ages)
     rel_r = rng.uniform(0.03, 0.08, N_REGULAR)
     rel_l = rng.uniform(0.04, 0.10, N_REGULAR)
     rel_t = rng.uniform(0.02, 0.03, N_REGULAR)
@@ -95,7 +106,8 @@ def make(seed: int = SEED):
         elif i + 1 == UNSAFE_INDEX:
             note = "id with a space and a slash (unsafe as a file name)"
         rows.append(row)
-        truths.append({"id": name, "mass": masses[i], "X": X[i], "Z": Z[i], "radius": R[i], "luminosity": L[i],
+        truths.append({"id": name, "mass": masses[i], "X": X[i], "Z": Z[i], "age": ages[i], "radius": R[i],
+                       "luminosity": L[i],
                        "teff": T[i], "feh": feh_true, "note": note})
 
     g = GIANT
@@ -103,7 +115,7 @@ def make(seed: int = SEED):
     rows.append({"id": g["id"], "radius": g["radius"], "radius_err": _round(g["rel"][0] * g["radius"], 2),
                  "luminosity": g["luminosity"], "luminosity_err": _round(g["rel"][1] * g["luminosity"], 2),
                  "teff": _round(t_giant), "teff_err": 120.0, "feh": None, "feh_err": None})
-    truths.append({"id": g["id"], "mass": np.nan, "X": np.nan, "Z": np.nan, "radius": g["radius"],
+    truths.append({"id": g["id"], "mass": np.nan, "X": np.nan, "Z": np.nan, "age": np.nan, "radius": g["radius"],
                    "luminosity": g["luminosity"], "teff": t_giant, "feh": np.nan,
                    "note": "giant-like: no main-sequence model reaches this radius at this luminosity"})
     return rows, truths
@@ -133,6 +145,7 @@ def write(rows, truths, folder: Path = HERE):
     tru["mass"] = [t["mass"] for t in truths] * u.M_sun
     tru["X"] = [t["X"] for t in truths]
     tru["Z"] = [t["Z"] for t in truths]
+    tru["age"] = [t["age"] for t in truths] * u.Gyr
     tru["radius"] = [t["radius"] for t in truths] * u.R_sun
     tru["luminosity"] = [t["luminosity"] for t in truths] * u.L_sun
     tru["teff"] = [t["teff"] for t in truths] * u.K

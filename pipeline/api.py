@@ -221,9 +221,13 @@ def model(mass, X=None, Z=None, *, age=None, profile=None, opacity=None, relatio
     ----------
     mass : float or Quantity, M_sun
     X, Z : float, optional
-        Hydrogen and metal mass fractions (default: solar, Asplund et al. 2009).
+        Hydrogen and metal mass fractions.  Default, for models with a composition rule (the default track
+        grid): X by the rule at the given Z, or at the calibrated Sun's initial Z when none is given, so
+        ``model(1, age=4.57)`` is the calibrated Sun; for other models, the solar surface values of Asplund
+        et al. (2009).
     age : float or Quantity, Gyr, optional
-        Selects the solved star (profile and relation ``solved``) unless others are named; 0 is zero-age.
+        Age since the zero-age main sequence (default 0).  With a profile or relation named that has no age
+        (a polytrope, homology) the solved star is used for the other.
     profile, opacity, relation : str, optional
         Component names (default: the stage table's defaults).
     settings : dict, optional
@@ -256,7 +260,7 @@ def one_star(mass, X=None, Z=None, *, stages=None, settings=None, plugins=(), ag
     ----------
     mass : float, M_sun
     X, Z : float, optional
-        Default: solar (Asplund et al. 2009).
+        Default: see :func:`model`.
     stages : dict, optional
         Stage name -> component name.
     settings : dict, optional
@@ -264,7 +268,9 @@ def one_star(mass, X=None, Z=None, *, stages=None, settings=None, plugins=(), ag
     plugins : sequence of str
         Plugin files.
     age : float, Gyr, optional
-        Selects the solved models unless ``stages`` names others.
+        Sets the ``age`` parameter; stages left unnamed become models with an age (the defaults are).  When
+        the default track-grid stages have no grid for the chosen opacity law yet, the star is solved
+        directly instead (a note says so).
     radius, luminosity : float, optional
         R_sun and L_sun replacing the relation's (polytrope profiles only).
 
@@ -276,13 +282,46 @@ def one_star(mass, X=None, Z=None, *, stages=None, settings=None, plugins=(), ag
     from radwalk.forward.one_star import model_star, with_age
     from radwalk.host.config import RunConfig
     from radwalk.inference.fit import stages_for
+    from radwalk.physics.structure.calibration import CALIBRATED_ALPHA, CALIBRATED_Y0, composition_from_helium
 
     stages = dict(stages or {})
+    named = set(stages)  # what the caller chose, before the age fills in models with a history
     settings = dict(settings or {})
     if age is not None:
         with_age(stages, settings, float(age))
     plugin_paths = tuple(str(Path(p).expanduser().resolve()) for p in plugins)
     built = stages_for(RunConfig(stages=stages, settings=settings, plugins=plugin_paths))
     params = {k: v for k, v in settings.items() if k not in built.option_names()}
-    return model_star(built, float(mass), X_SUN if X is None else float(X), Z_SUN if Z is None else float(Z),
-                      params, radius=radius, luminosity=luminosity)
+    note = None
+    if _no_grid_yet(built, named, params):
+        # One star of a law without a grid: solving it directly takes seconds, building the law's grid an hour.
+        stages.update({s: "solved" for s in ("profile", "relation") if s not in named})
+        settings.setdefault("alpha_mlt", CALIBRATED_ALPHA)  # the solved stages' own default is a textbook value
+        built = stages_for(RunConfig(stages=stages, settings=settings, plugins=plugin_paths))
+        params = {k: v for k, v in settings.items() if k not in built.option_names()}
+        note = (f"no track grid for opacity {built.opacity.name!r} yet: this star was solved directly (profile and "
+                "relation 'solved', alpha_mlt of the calibrated Sun); `radwalk grid build --opacity "
+                f"{built.opacity.name}` makes the grid")
+    if X is None and built.hydrogen_stage() is not None:
+        # A model with a composition rule: X by its own rule, at the calibrated Sun's initial Z if none is given.
+        Z = composition_from_helium(CALIBRATED_Y0)[1] if Z is None else float(Z)
+        values = {**built.defaults(), **{k: built.param(k).check(v) for k, v in params.items()}, "Z": Z}
+        X = float(built.hydrogen_fraction(values)[0])
+    interior = model_star(built, float(mass), X_SUN if X is None else float(X), Z_SUN if Z is None else float(Z),
+                          params, radius=radius, luminosity=luminosity)
+    if note:
+        interior.summary["warnings"].insert(0, note)  # the same list as interior.warnings
+    return interior
+
+
+def _no_grid_yet(built, named: set, params: dict) -> bool:
+    """Whether a default (not named) grid-backed stage would have to build its grid first."""
+    for stage in ("relation", "profile"):
+        comp = getattr(built, stage)
+        available = getattr(comp, "grid_available", None)
+        if stage in named or available is None:
+            continue
+        values = {**built.defaults(), **{k: built.param(k).check(v) for k, v in params.items()}}
+        if not available(built.bound_opacity(values)):
+            return True
+    return False

@@ -196,6 +196,21 @@ class _GridSource:
             _GRIDS[key] = self._file_grid(kappa) if self.grid_file else self._cached_grid(kappa)
         return _GRIDS[key]
 
+    def grid_available(self, opacity) -> bool:
+        """Whether the grid for the bound law is at hand (a grid file, shipped or cached) without building it."""
+        if self.grid_file:
+            return True
+        okey = opacity_key(opacity)
+        if okey[0] == "callable":
+            return False
+        key = (okey, self.options_key)
+        if key not in _GRIDS:
+            grid = cached_grid(track_opacity(opacity), self.spec(), build=False)
+            if grid is None:
+                return False
+            _GRIDS[key] = grid
+        return True
+
     def _file_grid(self, opacity) -> TrackGrid:
         try:
             grid = TrackGrid.load(self.grid_file)

@@ -10,7 +10,9 @@ import radwalk
 from radwalk.cli.main import main
 from radwalk.errors import RadwalkError
 
-FAST = {"sampler": {"walkers": 16, "chunk": 200, "max_steps": 1200, "derived_samples": 150, "optimizer_starts": 2}}
+# Two band stars: the profile bands are not what these tests check, and each band star is a solved star (~2 s).
+FAST = {"settings": {"band_stars": 2},
+        "sampler": {"walkers": 16, "chunk": 200, "max_steps": 1200, "derived_samples": 150, "optimizer_starts": 2}}
 STAR = {"radius": (1.02, 0.02), "luminosity": (1.05, 0.05), "teff": (5800.0, 60.0)}
 
 
@@ -25,7 +27,8 @@ def result():
 
 def test_fit_summary_is_the_summary_json_of_the_command_line(result, tmp_path, capsys):
     toml = tmp_path / "fast.toml"
-    toml.write_text("[sampler]\n" + "\n".join(f"{k} = {v}" for k, v in FAST["sampler"].items()) + "\n")
+    toml.write_text("[settings]\nband_stars = 2\n[sampler]\n"
+                    + "\n".join(f"{k} = {v}" for k, v in FAST["sampler"].items()) + "\n")
     code = main(["fit", "--id", "api star", "--radius", "1.02", "0.02", "--luminosity", "1.05", "0.05", "--teff",
                  "5800", "60", "--config", str(toml), "--seed", "4", "--out", str(tmp_path / "cli"), "--no-plots"])
     capsys.readouterr()
@@ -72,7 +75,7 @@ def test_model_equals_radwalk_model_json(capsys):
     cli = json.loads(capsys.readouterr().out, parse_constant=_refuse)
     assert star.summary == cli
     assert star.profile["T"].unit == u.K and len(star.profile) > 100
-    quick = radwalk.model(mass=2 * u.Msun, settings={"n": 1.5})
+    quick = radwalk.model(mass=2 * u.Msun, profile="polytrope", relation="homology", settings={"n": 1.5})
     assert quick.summary["stages"]["profile"] == "polytrope" and quick.summary["parameters"]["n"] == 1.5
 
 
@@ -99,5 +102,7 @@ def test_the_readme_python_example_runs(tmp_path, monkeypatch, capsys):
     namespace = {}
     exec(compile(block, "README.md", "exec"), namespace)  # noqa: S102 - the project's own README
     assert "p50" in capsys.readouterr().out
-    assert namespace["star"].summary["age_gyr"] == 0.0 and namespace["star"].summary["stages"]["profile"] == "solved"
+    sun = namespace["star"].summary  # the calibrated Sun: no composition given
+    assert sun["age_gyr"] == 4.57 and sun["stages"]["profile"] == "track-grid"
+    assert sun["radius_rsun"] == pytest.approx(1.0, abs=1e-3) and sun["luminosity_lsun"] == pytest.approx(1.0, abs=1e-3)
     assert namespace["res"].samples["mass"].unit == u.Msun

@@ -9,16 +9,18 @@ from radwalk.host.stages import STAGE_TABLE
 def add_model_parser(sub, common):
     m = sub.add_parser("model", parents=[common], help="interior and timescales of one star of given mass")
     m.add_argument("--mass", type=finite_float, required=True, help="mass in M_sun")
-    m.add_argument("--X", type=finite_float, default=None, help="hydrogen mass fraction (default: solar)")
-    m.add_argument("--Z", type=finite_float, default=None, help="metal mass fraction (default: solar)")
+    m.add_argument("--X", type=finite_float, default=None,
+                   help="hydrogen mass fraction (default: the model's composition rule for the track grid, else solar)")
+    m.add_argument("--Z", type=finite_float, default=None,
+                   help="metal mass fraction (default: the calibrated Sun's initial Z for the track grid, else solar)")
     m.add_argument("--radius", type=finite_float, help="radius in R_sun, replacing the relation's")
     m.add_argument("--luminosity", type=finite_float, help="luminosity in L_sun, replacing the relation's")
     for stage in STAGE_TABLE:
         if stage.forward:
             m.add_argument(f"--{stage.name}", help=f"{stage.noun} (default {stage.default})")
     m.add_argument("--age", type=finite_float, metavar="GYR",
-                   help="age in Gyr since the zero-age main sequence (0: zero-age); selects the solved profile "
-                        "and relation unless --profile/--relation name others")
+                   help="age in Gyr since the zero-age main sequence (default 0: zero-age); a profile or relation "
+                        "without an age (polytrope, homology) gets the solved star for the other")
     m.add_argument("--set", action="append", metavar="NAME=VALUE", help="component parameter or option")
     m.add_argument("--json", action="store_true", help="print one JSON object")
     m.add_argument("--profile-out", metavar="FILE", help="write the radial profile (ECSV, with units)")

@@ -3,9 +3,9 @@
 Layout (every section optional)::
 
     [stages]                # one component per stage; opacity may be a list to compare laws
-    profile = "polytrope"
+    profile = "track-grid"
     opacity = "combined"
-    relation = "homology"
+    relation = "track-grid"
     likelihood = "gaussian"
 
     [settings]              # hold a parameter fixed, or set a component's text option

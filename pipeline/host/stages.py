@@ -57,11 +57,11 @@ class Stage:
 
 
 STAGE_TABLE: tuple[Stage, ...] = (
-    Stage("profile", "radwalk_profiles", ProfileModel, "profile", "polytrope", "profile model",
+    Stage("profile", "radwalk_profiles", ProfileModel, "profile", "track-grid", "profile model",
           "radial structure r, m, rho, P, T, beta of stars of given M, R, X, Z", ("mass",)),
     Stage("opacity", "radwalk_opacities", OpacityLaw, "kappa", "combined", "opacity law",
           "Rosseland-mean opacity kappa(rho, T, X, Z) in cm^2/g", ("T", "rho")),
-    Stage("relation", "radwalk_relations", Relation, "predict", "homology", "mass-radius-luminosity relation",
+    Stage("relation", "radwalk_relations", Relation, "predict", "track-grid", "mass-radius-luminosity relation",
           "radius and luminosity of a star of given mass and composition", ("mass",)),
     Stage("likelihood", "radwalk_likelihoods", Likelihood, "loglike", "gaussian", "likelihood",
           "log-likelihood of the predicted radius, luminosity and T_eff given the observed ones", (),

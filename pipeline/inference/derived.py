@@ -72,7 +72,7 @@ def _unreachable_note(post: Posterior, theta_map) -> str | None:
     return note(post.observed, opacity=post.stages.bound_opacity(values), Z=z_range)
 
 
-def derive(post: Posterior, samples: np.ndarray):
+def derive(post: Posterior, samples: np.ndarray, structures: bool = True):
     """Transport quantities and predictions on the given samples; also profile bands.
 
     Parameters
@@ -80,6 +80,10 @@ def derive(post: Posterior, samples: np.ndarray):
     post : Posterior
     samples : ndarray [N, ndim]
         Sampled parameters followed by those drawn from their priors.
+    structures : bool
+        False: where the profile model has quantities of its own and no plugin adds derived quantities, no
+        radial structure is solved (``bands`` and ``r_rel`` are then None): the scalars at the posterior
+        maximum need none, and a solved star costs seconds.
 
     Returns
     -------
@@ -112,20 +116,57 @@ def derive(post: Posterior, samples: np.ndarray):
         # structures, slow to solve, are solved only for the evenly spaced few the bands need.
         rows = np.arange(n_ok) if quick is None else band_rows(n_ok, post.stages.profile)
         vals_band = vals_ok if quick is None else {kk: (v[rows] if np.ndim(v) else v) for kk, v in vals_ok.items()}
-        prof, tr = post.stages.structure(vals_band, pred["radius"][ok][rows], pred["luminosity"][ok][rows])
+        skip = not structures and quick is not None and not post.stages.registry.derived_hooks().get_hookimpls()
+        prof, tr = (None, None) if skip else post.stages.structure(vals_band, pred["radius"][ok][rows],
+                                                                    pred["luminosity"][ok][rows])
     notes = [str(w.message) for w in caught]
     notes += post.stages.validity_messages(vals_ok, prof)
     derived = {}
     for key in ("radius", "luminosity", "teff"):
         derived[key] = pred[key][ok] * quantity(key).factor
     derived["mu"] = np.broadcast_to(mu(vals_ok["X"], vals_ok["Z"]), (n_ok,)).copy()
+    if post.hydrogen_tied:  # X follows Z by the model's rule: not sampled, but the star's composition all the same
+        derived["X"] = np.broadcast_to(np.asarray(vals_ok["X"], dtype=float), (n_ok,)).copy()
     for key, v in (tr.scalars if quick is None else quick).items():
         derived[key] = v * (CATALOGUE[key].factor if key in CATALOGUE else 1.0)
+    if prof is None:
+        return derived, None, None, notes, ok
     for key, v in plugin_quantities(post.stages, prof, vals_band, tr, set(derived)).items():
         derived[key] = v if quick is None else _spread(v, rows, n_ok)
-    fields = {"rho": prof.rho, "T": prof.T, "convective": np.asarray(tr.convective, dtype=float), **tr.fields}
-    r_rel, bands = profile_bands(prof.r / prof.R[:, None], {f: fields[f] for f in BAND_FIELDS})
+    r_rel, bands = _bands_of(prof, tr)
     return derived, bands, r_rel, notes, ok
+
+
+def _bands_of(prof, tr):
+    """(r_rel [g], bands: field -> [5, g]) of solved structures."""
+    fields = {"rho": prof.rho, "T": prof.T, "convective": np.asarray(tr.convective, dtype=float), **tr.fields}
+    return profile_bands(prof.r / prof.R[:, None], {f: fields[f] for f in BAND_FIELDS})
+
+
+def band_structures(post: Posterior, samples: np.ndarray):
+    """The profile bands of samples whose scalars came without structures (``derive(..., structures=False)``).
+
+    Solves the radial structure of the :func:`band_rows` of the samples that give a model star, as
+    :func:`derive` would have: the figures ask for it only when they are drawn.
+
+    Returns
+    -------
+    r_rel : ndarray [g]
+    bands : dict
+        field -> [5, g]
+    notes : list of str
+        Validity warnings raised while solving them.
+    """
+    vals = post.values(samples)
+    with warnings.catch_warnings(record=True) as caught:
+        warnings.simplefilter("always", ValidityWarning)
+        pred = post.stages.predict(vals)
+        ok = np.isfinite(pred["radius"]) & np.isfinite(pred["luminosity"])
+        rows = band_rows(int(ok.sum()), post.stages.profile)
+        vals_band = {kk: (v[ok][rows] if np.ndim(v) else v) for kk, v in vals.items()}
+        prof, tr = post.stages.structure(vals_band, pred["radius"][ok][rows], pred["luminosity"][ok][rows])
+    r_rel, bands = _bands_of(prof, tr)
+    return r_rel, bands, [str(w.message) for w in caught]
 
 
 def band_rows(n: int, profile) -> np.ndarray:

@@ -13,7 +13,7 @@ import time
 import traceback
 import warnings
 from dataclasses import dataclass, field
-from functools import lru_cache
+from functools import lru_cache, partial
 from pathlib import Path
 
 import numpy as np
@@ -23,7 +23,7 @@ from radwalk.forward.quantities import output_unit
 from radwalk.forward.stages import StageSet
 from radwalk.host.config import RunConfig
 from radwalk.host.registry import Registry
-from radwalk.inference.derived import check_reachable, derive, ppc_pvalue
+from radwalk.inference.derived import band_structures, check_reachable, derive, ppc_pvalue
 from radwalk.inference.posterior import Posterior
 from radwalk.inference.sampler import run_chain
 from radwalk.inference.star import Star, seed_for
@@ -120,7 +120,9 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     indep = post.draw_independent(np.random.default_rng(prior_seed), flat.shape[0], theta=flat)
     flat = np.column_stack([flat, indep])
     idx = _evenly(flat.shape[0], config.sampler.derived_samples)
-    derived, bands, r_rel, notes, ok = derive(post, flat[idx])
+    # Scalars only where the profile model has its own (the track grid): the bands' solved structures cost
+    # seconds each and are made when the figures ask for them (FitProducts.ensure_bands).
+    derived, bands, r_rel, notes, ok = derive(post, flat[idx], structures=False)
     pval = ppc_pvalue(post, flat[idx], np.random.default_rng(ppc_seed))
 
     warn = list(dict.fromkeys(notes))
@@ -153,7 +155,7 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
         }
     map_derived = {}
     try:
-        md, _, _, _, mok = derive(post, chain.map_theta[None, :])
+        md, _, _, _, mok = derive(post, chain.map_theta[None, :], structures=False)
         if mok.all():
             map_derived = {kk: float(v[0]) for kk, v in md.items()}
     except RadwalkError:
@@ -185,6 +187,7 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
         param_labels=[p.latex or p.name for p in all_params], param_units=[p.unit for p in all_params],
         priors=all_priors, samples=flat, derived=derived, r_rel=r_rel, bands=bands,
         observed=star.user_values(),
+        band_source=None if bands is not None else partial(band_structures, post, flat[idx]),
     )
     return summary, products
 
@@ -231,6 +234,8 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> 
 
                 summary["plots"] = write_star_plots(products[primary], folder,
                                                     comparison=products if len(products) > 1 else None)
+                # Warnings of the structures the profile bands solved (drawn only now) join the star's.
+                summary["warnings"] = list(dict.fromkeys(summary["warnings"] + products[primary].band_notes))
     except (CatalogError, ModelError, ConfigError) as exc:
         status, reason, summary = "failed", str(exc), {}
     except PluginError as exc:

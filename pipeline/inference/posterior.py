@@ -22,6 +22,10 @@ from radwalk.host.params import Prior
 # enough for a support that holds 1/1000 of the prior.
 _SUPPORT_ROUNDS = 250
 
+# Pool of in-support draws per wanted draw when a joint prior term reweights them: the track grid's age prior
+# weights masses by up to 13.8 Gyr / t_MS (~500 at 8 M_sun), and 8 pool draws per draw keep repeats rare.
+_DENSITY_POOL = 8
+
 
 class Posterior:
     """Log-posterior over the sampled parameters of a StageSet.
@@ -101,6 +105,7 @@ class Posterior:
         self._lik_names = [p.name for p in stages.likelihood.params]
         self._has_support = bool(stages.support_stages())
         self._has_density = bool(stages.prior_density_stages())
+        self._widths = None  # prior_widths(), drawn once
 
     # -- parameter vectors ----------------------------------------------
     def values(self, theta) -> dict:
@@ -194,13 +199,28 @@ class Posterior:
         return out
 
     def sample_prior(self, rng: np.random.Generator, size: int):
-        """Draws from the priors of the sampled parameters, [size, ndim], inside the components' supports.
+        """Draws from the prior of the sampled parameters, [size, ndim], inside the components' supports.
 
         Each parameter is drawn from its own prior; draws outside the joint
         support (:meth:`radwalk.forward.stages.StageSet.support`) are thrown
         away and more are drawn, so the draws follow the product of the priors
-        restricted to the support.
+        restricted to the support.  Where components add a joint prior term
+        (:meth:`radwalk.forward.stages.StageSet.log_prior_density`, e.g. the
+        age prior uniform up to each mass's lifetime), a pool
+        :data:`_DENSITY_POOL` times larger is drawn and resampled with weights
+        exp(term) (sampling-importance resampling, Rubin 1988): the draws then
+        follow the whole prior, to that method's accuracy, and may repeat.
         """
+        if not (self._has_density and self.priors):
+            return self._draws_in_support(rng, size)
+        pool = self._draws_in_support(rng, _DENSITY_POOL * size)
+        with np.errstate(all="ignore"):
+            logw = self.stages.log_prior_density(self.values(pool))
+        w = np.exp(logw - np.max(logw))
+        return pool[rng.choice(pool.shape[0], size=size, p=w / w.sum())]
+
+    def _draws_in_support(self, rng: np.random.Generator, size: int):
+        """Draws from the product of the declared priors restricted to the supports, [size, ndim]."""
         def draw(m):
             cols = [p.sample(rng, m) for p in self.priors]
             return np.column_stack(cols) if cols else np.zeros((m, 0))
@@ -220,6 +240,7 @@ class Posterior:
                           "to the models' range")
 
     def prior_widths(self):
-        """A scale per parameter: the standard deviation of its prior."""
-        rng = np.random.default_rng(0)
-        return self.sample_prior(rng, 4000).std(axis=0)
+        """A scale per parameter: the standard deviation of its prior (the whole prior, joint terms included)."""
+        if self._widths is None:
+            self._widths = self.sample_prior(np.random.default_rng(0), 4000).std(axis=0)
+        return self._widths

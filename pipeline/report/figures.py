@@ -437,6 +437,7 @@ def _log_limits(band: np.ndarray, r: np.ndarray):
 def profile_figure(products: FitProducts) -> Figure:
     """Radial profiles with 68 % and 95 % credible bands over the posterior samples."""
     lo95, lo68, mid, hi68, hi95 = (BAND_PERCENTILES.index(p) for p in (2.5, 16.0, 50.0, 84.0, 97.5))
+    products.ensure_bands()  # a track-grid fit solves its band stars only now
     with matplotlib.rc_context(STYLE):
         fig = Figure(figsize=(10, 10.5), layout="constrained")
         grid = fig.subplots(3, 2, sharex=True)

@@ -6,7 +6,7 @@ The fit (radwalk.inference.fit) fills a :class:`FitProducts`; the figures
 
 from __future__ import annotations
 
-from dataclasses import dataclass
+from dataclasses import dataclass, field
 
 import numpy as np
 
@@ -66,5 +66,13 @@ class FitProducts:
     derived_rows: np.ndarray  # [nderived] rows of ``samples`` the derived quantities were computed on
     derived: dict  # name -> [N] in output units
     r_rel: np.ndarray  # [g]
-    bands: dict  # field -> [5, g] (BAND_FIELDS; a product written before "convective" existed may lack it)
+    bands: dict | None  # field -> [5, g] (BAND_FIELDS); None until ensure_bands() when band_source makes them
     observed: dict  # name -> (value, err) in R_sun, L_sun, K
+    band_source: object = None  # callable -> (r_rel, bands, notes): the bands' structures, solved on first use
+    band_notes: list = field(default_factory=list)  # validity warnings of those structures
+
+    def ensure_bands(self) -> None:
+        """Solves the profile bands' structures if they were left for the figures (a quick-quantity profile)."""
+        if self.bands is None and self.band_source is not None:
+            self.r_rel, self.bands, self.band_notes = self.band_source()
+            self.band_source = None

@@ -27,7 +27,7 @@ def demo_paths() -> dict:
     return paths
 
 
-def demo_recovery(out_dir, truths_path, level: float = 0.95, names=("mass", "X", "Z")) -> dict:
+def demo_recovery(out_dir, truths_path, level: float = 0.95, names=("mass", "Z", "age")) -> dict:
     """How often the demo's true parameters lie inside the central credible intervals.
 
     Only converged stars (status ok) with truths count.

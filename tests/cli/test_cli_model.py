@@ -25,12 +25,16 @@ def run(capsys, *argv):
 
 
 def test_model_json_has_every_key(capsys):
-    code, out, _ = run(capsys, "model", "--mass", "1", "--json")
+    code, out, _ = run(capsys, "model", "--mass", "1", "--age", "4.57", "--json")
     assert code == 0
     d = json.loads(out)
-    for key in JSON_KEYS:
+    for key in JSON_KEYS + ["main_sequence_lifetime_gyr", "central_hydrogen"]:
         assert key in d
-    assert d["radius_rsun"] == pytest.approx(1.0, rel=1e-3)  # calibrated Sun (via the grid-free relation)
+    # The calibrated Sun (no composition given) off the shipped track grid: R and L of the IAU 2015 nominal Sun
+    # (Resolution B3) to the 0.1 % the calibration asks.
+    assert d["radius_rsun"] == pytest.approx(1.0, rel=1e-3) and d["luminosity_lsun"] == pytest.approx(1.0, rel=1e-3)
+    assert d["stages"] == {"profile": "track-grid", "opacity": "combined", "relation": "track-grid",
+                           "likelihood": "gaussian"}
     assert isinstance(d["convective_zones"], list)
 
 
@@ -41,7 +45,8 @@ def test_model_human_table_has_units(capsys):
 
 
 def test_model_given_radius_and_luminosity_replace_the_relation(capsys):
-    code, out, _ = run(capsys, "model", "--mass", "1", "--radius", "2", "--luminosity", "3", "--json")
+    code, out, _ = run(capsys, "model", "--mass", "1", "--radius", "2", "--luminosity", "3", "--profile", "polytrope",
+                       "--relation", "homology", "--json")
     d = json.loads(out)
     assert d["radius_rsun"] == pytest.approx(2.0)
     assert d["luminosity_lsun"] == pytest.approx(3.0)
@@ -50,7 +55,8 @@ def test_model_given_radius_and_luminosity_replace_the_relation(capsys):
 
 def test_model_set_and_profile_out(tmp_path, capsys):
     path = tmp_path / "prof.ecsv"
-    code, out, _ = run(capsys, "model", "--mass", "1", "--set", "n=1.5", "--profile-out", str(path), "--json")
+    code, out, _ = run(capsys, "model", "--mass", "1", "--profile", "polytrope", "--set", "n=1.5", "--profile-out",
+                       str(path), "--json")
     assert code == 0
     assert json.loads(out)["parameters"]["n"] == 1.5
     t = Table.read(path)
@@ -65,14 +71,15 @@ def test_model_set_and_profile_out(tmp_path, capsys):
         (["--mass", "1", "--opacity", "kramer"], "unknown opacity component 'kramer' (did you mean 'kramers'?)"),
         (["--mass", "1", "--profile", "nope"], "unknown profile component 'nope'"),
         (["--mass", "1", "--relation", "homolgy"], "did you mean 'homology'"),
-        (["--mass", "1", "--set", "nn=3"], "unknown parameter 'nn' (did you mean 'n'?)"),
+        (["--mass", "1", "--set", "nn=3", "--profile", "polytrope"], "unknown parameter 'nn' (did you mean 'n'?)"),
         (["--mass", "1", "--set", "n"], "--set needs NAME=VALUE"),
         (["--mass", "1", "--X", "0.8", "--Z", "0.3"], "X + Z = 1.1 exceeds 1"),
         (["--mass", "-1"], "mass = -1.0 M_sun is not allowed"),
         (["--mass", "nan"], "mass = nan M_sun is not allowed"),
         (["--mass", "inf"], "mass = inf M_sun is not allowed"),
-        (["--mass", "1", "--set", "n=5"], "parameter 'n' of profile 'polytrope' = 5 is outside its allowed range"),
-        (["--mass", "1", "--set", "n=-0.5"], "outside its allowed range [0, 4.99]"),
+        (["--mass", "1", "--set", "n=5", "--profile", "polytrope"],
+         "parameter 'n' of profile 'polytrope' = 5 is outside its allowed range"),
+        (["--mass", "1", "--set", "n=-0.5", "--profile", "polytrope"], "outside its allowed range [0, 4.99]"),
         (["--mass", "1", "--radius", "0"], "radius = 0.0 is not allowed"),
     ],
 )
@@ -160,7 +167,8 @@ def test_plugin_component_is_listed_and_used(tmp_path, capsys):
     ours = [c for c in info["opacity"] if c["name"] == "flat-one"]
     assert ours and ours[0]["source"].startswith("file ")
     code, out, _ = run(capsys, "model", "--mass", "1", "--radius", "1", "--luminosity", "1",
-                       "--opacity", "flat-one", "--plugin", str(p), "--json")
+                       "--opacity", "flat-one", "--profile", "polytrope", "--relation", "homology", "--plugin", str(p),
+                       "--json")
     assert code == 0
     # constant kappa = 1: mean free path at the centre is 1/rho_c
     d = json.loads(out)

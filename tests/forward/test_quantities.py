@@ -15,13 +15,17 @@ from radwalk.results.document import OBSERVED_UNITS
 ASTROPY = {"R_sun": u.R_sun, "L_sun": u.L_sun, "M_sun": u.M_sun}
 
 
+# The quick textbook stages: the quantities of a structure at a given R and L (the default track grid sets its own).
+TEXTBOOK = {"profile": "polytrope", "relation": "homology"}
+
+
 def unit(text):
     return ASTROPY.get(text) or u.Unit(text)
 
 
 @pytest.fixture(scope="module")
 def sun_transport():
-    stages = stages_for(RunConfig())
+    stages = stages_for(RunConfig(stages=TEXTBOOK))
     values = stages.defaults()
     values.update(mass=np.array([1.0]), X=np.array([0.70]), Z=np.array([0.02]))
     pred = stages.predict(values, use_grid=False)
@@ -98,7 +102,7 @@ def test_model_summary_keys_are_the_documented_ones():
         "dynamical_time_s", "main_sequence_lifetime_gyr", "eddington_luminosity_lsun", "eddington_ratio",
         "convective_core_mass_fraction",
         "convective_envelope_base_radius", "convective_turnover_time_d", "convective_turnover_time_global_d"]
-    stages = stages_for(RunConfig())
+    stages = stages_for(RunConfig(stages=TEXTBOOK))
     summary = model_star(stages, 1.0, 0.70, 0.02, radius=1.0, luminosity=1.0).summary
     assert list(summary)[:8] == ["mass_msun", "radius_rsun", "luminosity_lsun", "teff_k", "X", "Z", "age_gyr", "mu"]
     assert summary["radius_rsun"] == 1.0 and summary["luminosity_lsun"] == 1.0

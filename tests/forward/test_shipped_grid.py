@@ -60,5 +60,14 @@ def test_random_tracks_re_solve_to_the_shipped_values(shipped, default_opacity):
         with np.errstate(divide="ignore", invalid="ignore"):
             fresh = np.where(log, np.log10(track.values), track.values).astype(np.float32)
         # float32 storage (6e-8) and the solver's convergence (1e-6 relative, tested elsewhere) bound the match
-        np.testing.assert_allclose(fresh, shipped.table[i, j], rtol=0, atol=2e-5, equal_nan=True,
-                                   err_msg=f"track {M:g} M_sun, Z = {Z:g}")
+        # of every quantity but one: the global turnover time integrates dr / v_conv across a convective zone,
+        # and in the thin surface zone of a hot star v_conv -> 0 at both edges, so rounding differences between
+        # machines (OpenBLAS picks its kernels by CPU) move it by up to 0.0082 dex (measured on the 3.2 M_sun,
+        # Z = 0.003 track between the machine that built the grid and another; every other column agreed to
+        # 7e-6).  It is compared to 0.01 dex.
+        names = [q["name"] for q in shipped.header["quantities"]]
+        atol = np.where(np.array(names) == "convective_turnover_time_global", 0.01, 2e-5)
+        bad = ~(np.isclose(fresh, shipped.table[i, j], rtol=0, atol=atol) | (np.isnan(fresh)
+                                                                            & np.isnan(shipped.table[i, j])))
+        assert not bad.any(), (f"track {M:g} M_sun, Z = {Z:g}: {sorted({names[c] for c in np.nonzero(bad)[1]})} "
+                               f"differ by up to {np.nanmax(np.abs(fresh - shipped.table[i, j])[bad]):.3g}")

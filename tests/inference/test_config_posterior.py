@@ -60,8 +60,13 @@ def test_bad_toml_is_one_clear_error(tmp_path):
         cfgmod.load(p)
 
 
+# The quick textbook stages, whose sampled parameters are mass, X and Z (the default track grid samples mass, Z
+# and age, with X from Z): the posterior's mechanics are tested on them.
+TEXTBOOK = {"profile": "polytrope", "relation": "homology"}
+
+
 def _post(config=None, star=None, feh=None):
-    config = config or cfgmod.RunConfig()
+    config = config or cfgmod.RunConfig(stages=TEXTBOOK)
     star = star or Star.from_user_units("p", 1.0, 0.02, 1.0, 0.05, 5772, 60)
     return Posterior(stages_for(config), star.observations(), config, feh=feh)
 
@@ -110,7 +115,7 @@ def test_feh_prior_pulls_z():
 
 def test_prior_override_and_fixed_setting():
     c = cfgmod.from_dict({"priors": {"mass": {"kind": "uniform", "lower": 0.5, "upper": 2}},
-                          "settings": {"X": 0.7}})
+                          "settings": {"X": 0.7}, "stages": TEXTBOOK})
     post = _post(c)
     assert post.names == ["mass", "Z"] and post.fixed["X"] == 0.7
     assert post.priors[0].kind == "uniform"
@@ -123,7 +128,7 @@ def test_unknown_parameter_in_config():
 
 
 def test_prior_outside_allowed_range():
-    c = cfgmod.from_dict({"priors": {"X": {"kind": "uniform", "lower": 0.5, "upper": 1.2}}})
+    c = cfgmod.from_dict({"priors": {"X": {"kind": "uniform", "lower": 0.5, "upper": 1.2}}, "stages": TEXTBOOK})
     with pytest.raises(ConfigError, match="reaches outside its allowed range"):
         _post(c)
 

@@ -79,6 +79,19 @@ def _record(dynamical_mass_stars, star_id):
     return next(r for r in dynamical_mass_stars if r["star"].id == star_id)
 
 
+_FITS: dict = {}  # star id -> (summary, products): each star is fitted once per session
+
+
+def _fit(rec):
+    from radwalk.inference.fit import fit_one
+    from radwalk.inference.star import seed_for
+
+    star_id = rec["star"].id
+    if star_id not in _FITS:
+        _FITS[star_id] = fit_one(rec["star"], _grid_config(), seed_for(1, star_id))
+    return _FITS[star_id]
+
+
 @pytest.mark.slow
 @pytest.mark.parametrize("star_id", MAIN_SEQUENCE)
 def test_main_sequence_mass_inside_the_95_percent_interval(dynamical_mass_stars, star_id):
@@ -87,11 +100,8 @@ def test_main_sequence_mass_inside_the_95_percent_interval(dynamical_mass_stars,
     # should then fall inside the central 95 % of the posterior mass.
     if not _grid_registered():
         pytest.skip(f"no relation named {TRACK_GRID!r} registered yet")
-    from radwalk.inference.fit import fit_one
-    from radwalk.inference.star import seed_for
-
     rec = _record(dynamical_mass_stars, star_id)
-    summary, products = fit_one(rec["star"], _grid_config(), seed_for(1, star_id))
+    summary, products = _fit(rec)
     mass = products.samples[:, products.param_names.index("mass")]
     lo, mid, hi = np.percentile(mass, [2.5, 50, 97.5])
     print(star_id, "posterior mass", lo, mid, hi, "dynamical", rec["mass"], "+/-", rec["mass_err"])
@@ -111,3 +121,24 @@ def test_star_past_the_main_sequence_is_refused(dynamical_mass_stars, star_id):
     rec = _record(dynamical_mass_stars, star_id)
     with pytest.raises(ModelError):
         fit_one(rec["star"], _grid_config(), seed_for(1, star_id))
+
+
+# Two binaries whose components are both on the main sequence and far enough along it for the age to be
+# measured: beta Aur (two A stars of 2.4 and 2.3 M_sun) and V505 Per (two F stars of 1.27 and 1.25 M_sun).
+# Coeval components of one composition must get compatible posteriors (common practice, no source).
+BINARIES = ["beta Aur", "V505 Per"]
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("system", BINARIES)
+def test_both_components_of_a_binary_agree_in_age_and_composition(dynamical_mass_stars, system):
+    if not _grid_registered():
+        pytest.skip(f"no relation named {TRACK_GRID!r} registered yet")
+    pair = sorted((r for r in dynamical_mass_stars if r["system"] == system), key=lambda r: r["component"])
+    assert [r["component"] for r in pair] == ["A", "B"]
+    fits = [_fit(r)[0]["parameters"] for r in pair]
+    for name in ("age", "Z"):
+        (a, b) = ((f[name]["p50"], 0.5 * (f[name]["p84"] - f[name]["p16"])) for f in fits)
+        print(system, name, "A", a, "B", b)
+        # Two standard deviations of the difference, each from the 16-84 % half-width.
+        assert abs(a[0] - b[0]) < 2 * math.hypot(a[1], b[1]), (name, a, b)

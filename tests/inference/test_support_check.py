@@ -171,3 +171,28 @@ def test_one_star_outside_the_support_is_refused_in_words(reg):
     with pytest.raises(ModelError, match=r"has no model for mass = 1.6 M_sun, X = 0.7, Z = 0.02, wear = 0.7"):
         model_star(stages, 1.6, 0.7, 0.02, {"wear": 0.7})
     assert model_star(stages, 1.6, 0.7, 0.02, {"wear": 0.6}).summary["radius_rsun"] > 0
+
+
+def test_prior_draws_follow_the_joint_age_prior(registry, small_track_grid):
+    # The track grid's age prior is uniform up to each mass's own lifetime (its support age <= t_MS and its
+    # joint term -log min(t_MS, 13.8 Gyr)).  Drawn from it, the mass keeps its declared uniform prior and the
+    # phase age / min(t_MS, 13.8 Gyr) is uniform; the support alone would favour long-lived masses (an age
+    # drawn on 0..13.8 Gyr survives with probability min(t_MS, 13.8) / 13.8: ~0.2 at 2 M_sun, 1 near 1 M_sun).
+    from radwalk.plugins.track_grid import AGE_OF_UNIVERSE_GYR
+
+    cfg = RunConfig(stages={"profile": "track-grid", "relation": "track-grid"},
+                    settings={"grid": small_track_grid},
+                    priors={"mass": Prior("uniform", 0.8, 2.0), "Z": Prior("log-uniform", 0.01, 0.02)})
+    stages = StageSet.build(registry, cfg.stages, {"track-grid": {"grid": small_track_grid}})
+    obs = Observations({"radius": k.R_SUN, "luminosity": k.L_SUN, "teff": np.nan},
+                       {"radius": 0.02 * k.R_SUN, "luminosity": 0.05 * k.L_SUN, "teff": np.nan})
+    post = Posterior(stages, obs, cfg)
+    draws = post.sample_prior(np.random.default_rng(5), 4000)
+    v = post.values(draws)
+    life = stages.quick_quantities(v)["main_sequence_lifetime"]
+    phase = v["age"] / np.minimum(life, AGE_OF_UNIVERSE_GYR)
+    # Uniform distributions: mean 1/2 with standard error 0.29 / sqrt(4000) = 0.005 (and the masses' mean 1.4
+    # with 0.35 / sqrt(4000) = 0.006); 4 standard errors, plus the resampling's repeats (~10 %).
+    assert abs(phase.mean() - 0.5) < 0.025
+    assert abs(v["mass"].mean() - 1.4) < 0.03
+    assert np.mean(v["mass"] > 1.4) == pytest.approx(0.5, abs=0.04)

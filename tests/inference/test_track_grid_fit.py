@@ -13,7 +13,7 @@ from radwalk import constants as k
 from radwalk.errors import ConfigError, ModelError
 from radwalk.host.config import RunConfig, SamplerConfig
 from radwalk.host.params import Prior
-from radwalk.inference.derived import band_rows, check_reachable, derive
+from radwalk.inference.derived import band_rows, band_structures, check_reachable, derive
 from radwalk.inference.fit import fit_one, stages_for
 from radwalk.inference.posterior import Posterior
 from radwalk.inference.sampler import run_chain
@@ -116,6 +116,16 @@ def test_derived_quantities_come_from_the_grid_and_bands_from_few_solved_stars(s
     # fully ionised gas: 1 / mu = 2 X + 3 Y / 4 + Z / 2 (Kippenhahn, Weigert & Weiss 2012, sect. 4.2)
     assert derived["mu"] == pytest.approx(np.full(6, 1.0 / (2.0 * X0 + 0.75 * Y0 + 0.5 * truth["Z"])))
     assert bands["T"].shape[1] == r_rel.size
+    # Without structures (what a fit does until its figures are drawn) the scalars are the same and the bands
+    # come later from the same band stars.
+    quick, none_bands, none_r, _, quick_ok = derive(post, theta, structures=False)
+    assert none_bands is None and none_r is None and quick_ok.all()
+    for name, values in derived.items():
+        np.testing.assert_array_equal(quick[name], values, err_msg=name)
+    later_r, later_bands, _ = band_structures(post, theta)
+    np.testing.assert_array_equal(later_r, r_rel)
+    for name, band in bands.items():
+        np.testing.assert_array_equal(later_bands[name], band, err_msg=name)
 
 
 @pytest.mark.slow

@@ -11,7 +11,8 @@ from radwalk.forward.stages import StageSet
 
 
 def sun(registry, opacity="combined", profile="polytrope", **settings):
-    stages = StageSet.build(registry, {"opacity": opacity, "profile": profile})
+    # The textbook relation: R and L are given, and a track grid would need a grid for every law named here.
+    stages = StageSet.build(registry, {"opacity": opacity, "profile": profile, "relation": "homology"})
     # R and L held at the nominal Sun (IAU 2015 B3) so only the interior model is tested
     return model_star(stages, 1.0, 0.70, 0.02, settings, radius=1.0, luminosity=1.0).summary
 

@@ -34,10 +34,17 @@ COPY = "bent-power-copy"  # the same law as a single-file plugin, under its own 
 # An invented Sun-like test star: R, L in solar units, T_eff in K, each with its error.
 STAR = {"radius": (1.0, 0.02), "luminosity": (1.0, 0.05), "teff": (5772.0, 60.0)}
 SAMPLER = SamplerConfig(walkers=16, chunk=200, max_steps=1500, derived_samples=100)
+# The quick textbook stages (polytrope + homology): these tests are about a plugin law reaching a fit, and the
+# default track grid would build a grid of tracks for every law (tests/forward/test_model_grid.py builds one).
 # n fixed: the polytrope index is otherwise drawn from its prior and its spread, not the
 # opacity law, sets the width of the diffusion-time posterior.
+TEXTBOOK = {"profile": "polytrope", "relation": "homology"}
 SETTINGS = {"n": 3.0}
 FAST_TOML = textwrap.dedent("""\
+    [stages]
+    profile = "polytrope"
+    relation = "homology"
+
     [sampler]
     walkers = 16
     chunk = 200
@@ -64,7 +71,7 @@ def star() -> Star:
 
 def fit(opacity: str, plugins=(), settings=None) -> dict:
     """The summary of one fit of the test star (what `radwalk fit` runs, without files)."""
-    cfg = RunConfig(stages={"opacity": opacity}, settings={**SETTINGS, **(settings or {})},
+    cfg = RunConfig(stages={**TEXTBOOK, "opacity": opacity}, settings={**SETTINGS, **(settings or {})},
                     sampler=SAMPLER, plugins=tuple(str(p) for p in plugins))
     result = fit_star(star(), cfg, outdir=None, plots=False)
     assert result.status != "failed", result.reason

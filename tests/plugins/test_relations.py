@@ -114,7 +114,7 @@ def test_grid_matches_direct_solution(registry):
     rng = np.random.default_rng(3)
     X = rng.uniform(0.6, 0.78, m.size)
     Z = np.exp(rng.uniform(np.log(0.001), np.log(0.05), m.size))
-    st = StageSet.build(registry, {})
+    st = StageSet.build(registry, {"profile": "polytrope", "relation": "homology"})
     v = st.defaults()
     v.update(mass=m, X=X, Z=Z)
     direct = st.predict(v, use_grid=False)
@@ -125,7 +125,7 @@ def test_grid_matches_direct_solution(registry):
 
 
 def test_outside_validity_is_reported(registry):
-    st = StageSet.build(registry, {})
+    st = StageSet.build(registry, {"profile": "polytrope", "relation": "homology"})
     v = st.defaults()
     v.update(mass=np.array([0.2, 1.0]), X=np.array([0.7, 0.7]), Z=np.array([0.02, 0.02]))
     msgs = st.validity_messages(v)

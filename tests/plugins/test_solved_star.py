@@ -13,7 +13,13 @@ NEW_KEYS = ("age_gyr", "central_hydrogen", "convective_core_mass_fraction", "con
             "diffusion_time_radiative_core_yr", "convective_crossing_time_yr")
 
 
+# The components under test, named: the default stages are the track grid, read off solved tracks.
+SOLVED = ("--profile", "solved", "--relation", "solved")
+
+
 def run(capsys, *argv):
+    if argv and argv[0] == "model":
+        argv = (*argv, *SOLVED)
     code = main(list(argv))
     out = capsys.readouterr()
     return code, out.out, out.err
