@@ -7,9 +7,11 @@ non-finite number is ``null``.
 
 from __future__ import annotations
 
+import errno
 import json
 import math
 import os
+import shutil
 import tempfile
 from contextlib import contextmanager
 from pathlib import Path
@@ -34,6 +36,32 @@ def atomic_path(path, suffix: str | None = None):
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
+
+
+def ensure_space(folder, nbytes: int):
+    """Raises OSError(ENOSPC) unless ``nbytes`` can be written in ``folder`` now.
+
+    Reserves the space in a scratch file (``posix_fallocate``, which sees quotas
+    too) and frees it again.  Called before handing writes to a library that does
+    not survive a failed write: HDF5 crashes the process (segmentation fault) when
+    it closes a file whose write hit a full disk, where a plain OSError is wanted.
+    """
+    folder = Path(folder)
+    fd, tmp = tempfile.mkstemp(prefix=".radwalk-space-", dir=folder)
+    try:
+        try:
+            os.posix_fallocate(fd, 0, max(1, int(nbytes)))
+        except OSError as exc:
+            if exc.errno not in (errno.EOPNOTSUPP, errno.EINVAL, errno.ENOSYS):
+                raise OSError(exc.errno, os.strerror(exc.errno), str(folder)) from None
+            if shutil.disk_usage(folder).free < nbytes:  # a file system without fallocate: free space only
+                raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(folder)) from None
+        except AttributeError:  # no posix_fallocate on this platform
+            if shutil.disk_usage(folder).free < nbytes:
+                raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(folder)) from None
+    finally:
+        os.close(fd)
+        os.unlink(tmp)
 
 
 def write_text(path, text: str):

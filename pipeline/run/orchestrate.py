@@ -27,7 +27,14 @@ from dataclasses import dataclass, field
 from pathlib import Path
 
 from radwalk import __version__
-from radwalk.errors import CatalogError, ConfigError, RadwalkError, ValidityWarning
+from radwalk.errors import (
+    CatalogError,
+    ConfigError,
+    EnvironmentProblem,
+    RadwalkError,
+    ValidityWarning,
+    environment_cause,
+)
 from radwalk.host.config import RunConfig, to_toml
 from radwalk.results.document import document, result_document
 from radwalk.results.files import write_json, write_table, write_text
@@ -258,6 +265,11 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
         if handler is not None:
             LOG.warning("interrupted; run the same command again to resume")
         raise
+    except (EnvironmentProblem, OSError, MemoryError) as exc:
+        problem = _environment_stop(exc, handler is not None)
+        if problem is None:
+            raise
+        raise problem from None
     finally:
         if ex is not None:
             ex.close(cancel=cancel)
@@ -282,10 +294,30 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
         LOG.info("finished: %s; summary %s (%d rows)", outcome.line(), outcome.summary_ecsv.name, len(table))
         if report:
             _report(out, outcome)
+    except (OSError, MemoryError) as exc:
+        problem = _environment_stop(exc, True)
+        if problem is None:
+            raise
+        raise problem from None
     finally:
         LOG.removeHandler(handler)
         handler.close()
     return outcome
+
+
+def _environment_stop(exc: BaseException, logged: bool) -> EnvironmentProblem | None:
+    """The one-line error that stops a run the machine failed (no space, I/O, memory), logged; None otherwise.
+
+    The stars it stopped were not marked done, so the same command resumes them.
+    """
+    cause = environment_cause(exc)
+    if cause is None:
+        return None
+    message = (f"stopped: {cause}; no star was marked done because of it: fix the cause (free space, ...) and "
+               "run the same command again to resume")
+    if logged:
+        LOG.error(message)
+    return EnvironmentProblem(message)
 
 
 def _count(outcome: RunOutcome, status: str):
