@@ -50,6 +50,7 @@ from radwalk.results.layout import (
 )
 from radwalk.run.catalog import Catalog, CatalogEntry, read_catalog
 from radwalk.run.executors import make_executor
+from radwalk.run.lock import folder_lock
 from radwalk.run.state import check_state, load_done, new_state, now, plugin_hashes, prepare_output, summary_docs
 
 PROVENANCE_PACKAGES = ("numpy", "scipy", "emcee", "astropy", "h5py", "matplotlib", "dask", "distributed")
@@ -222,6 +223,13 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
         folders[name.lower()] = e.id
 
     out = prepare_output(out_dir, force)
+    with folder_lock(out):
+        return _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet, plots,
+                           t0, started)
+
+
+def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet, plots, t0, started):
+    """run_catalog's work once it holds the output folder's lock."""
     state = new_state(catalog, config, hashes)
     old = check_state(out, state, force)
     if old and not force:

@@ -12,6 +12,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import socket
 import tempfile
 from datetime import datetime, timezone
 from functools import lru_cache
@@ -131,6 +132,8 @@ def new_state(catalog: Catalog, config: RunConfig, plugins: dict) -> dict:
         "plugins": plugins,
         "first_started": now(),
         "finished": None,
+        # who holds the folder now (radwalk.run.lock quotes it to a second run)
+        "run_by": {"pid": os.getpid(), "host": socket.gethostname(), "started": now()},
     }
 
 
