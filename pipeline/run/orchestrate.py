@@ -236,7 +236,7 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         state["first_started"] = old.get("first_started", state["first_started"])
     components = check_config(config)
     todo = [e for e in catalog if e.star is not None
-            and (force or load_done(star_folder(out, e.id), e.id, config.seed) is None)]
+            and (force or load_done(star_folder(out, e.id), e.star, config) is None)]
     # The executor starts before any file is written, so an unanswering scheduler changes nothing.
     ex = make_executor(executor, workers, scheduler, config, hashes if executor == "dask" else {}) if todo else None
     cancel = True
@@ -265,7 +265,7 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
                 _log_star(doc)
             elif e.row not in waiting:
                 outcome.resumed += 1
-                _count(outcome, load_done(star_folder(out, e.id), e.id, config.seed)["status"])
+                _count(outcome, load_done(star_folder(out, e.id), e.star, config)["status"])
         if todo:
             _compute(ex, todo, out, config, hashes if executor == "dask" else None, plots, quiet, outcome)
         cancel = False
@@ -357,7 +357,7 @@ def _compute(ex, todo, out, config, hashes, plots, quiet, outcome):
                 e = pending.pop(fut)
                 result = ex.result(fut)
                 folder = star_folder(out, e.id)
-                doc = load_done(folder, e.id, config.seed)
+                doc = load_done(folder, e.star, config)
                 if doc is None:  # a worker without the shared folder: keep what it returned
                     doc = result_document(e.star, config, result)
                     write_json(folder / STAR_SUMMARY, doc)
