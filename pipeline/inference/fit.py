@@ -75,7 +75,7 @@ def stages_for(config: RunConfig, opacity: str | None = None) -> StageSet:
     return stages
 
 
-PROBE_CHECKS = ("configure", "call", "shape", "finite", "positive")
+PROBE_CHECKS = ("configure", "call", "shape", "finite", "positive", "inputs")
 PROBE_POINTS = 24
 
 
