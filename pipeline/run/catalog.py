@@ -23,7 +23,10 @@ its value column.  Each such column gives one notice line.
 What stops the read (:class:`radwalk.errors.CatalogError`, one line): a file
 that is missing, unreadable, empty or without rows, a missing required column
 (id and at least one observable with its uncertainty), a unit that cannot be
-converted, rows without an id and duplicate ids.  What does not: a row with a
+converted, rows without an id and duplicate ids.  Ids are text, kept exactly as written:
+in CSV and TSV files every cell is read as text (``007`` stays ``007``, and
+``1`` and ``1.0`` are two ids); ECSV, FITS and VOTable files declare their
+column types, and a numeric id column there is the writer's choice.  What does not: a row with a
 NaN, a zero or negative uncertainty or an unphysical value becomes a failed
 entry with the reason, and the other stars run.  An empty (masked) or NaN
 value together with an empty uncertainty means "not measured" (a star may
@@ -71,6 +74,8 @@ _FORMATS = {
     ".ecsv": "ascii.ecsv", ".fits": "fits", ".fit": "fits", ".fts": "fits", ".vot": "votable",
     ".votable": "votable", ".xml": "votable", ".csv": "ascii.csv", ".tsv": "ascii.tab",
 }
+
+_TEXT_FORMATS = ("ascii.csv", "ascii.tab")  # formats without declared column types
 
 _SI_UNIT = {"radius": u.cm, "luminosity": u.erg / u.s}
 _NOMINAL = {"radius": (u.R_sun, k.R_SUN), "luminosity": (u.L_sun, k.L_SUN)}
@@ -180,7 +185,14 @@ def _read_table(path: Path, notices: list):
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            table = Table.read(path, format=fmt) if fmt else Table.read(path)
+            if fmt in _TEXT_FORMATS:
+                # every cell as the text written: ids are text ("007" and "1e3" must not become 7.0 and 1000.0,
+                # nor "1" and "1.0" one id); the value columns are parsed as numbers below
+                from astropy.io import ascii as astropy_ascii
+
+                table = Table.read(path, format=fmt, converters={"*": [astropy_ascii.convert_numpy(str)]})
+            else:
+                table = Table.read(path, format=fmt) if fmt else Table.read(path)
         except Exception as exc:  # noqa: BLE001 - every reader failure means "not a readable table"
             if fmt is None and type(exc).__name__ == "IORegistryError":
                 raise CatalogError(
