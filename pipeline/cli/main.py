@@ -51,6 +51,11 @@ def main(argv=None):
     except KeyboardInterrupt:
         print("radwalk: interrupted", file=sys.stderr)
         return 130
+    except (IsADirectoryError, NotADirectoryError, PermissionError, FileNotFoundError) as exc:
+        # a path the user gave that cannot be used: one line, like every other input error
+        where = f": {exc.filename}" if exc.filename else ""
+        print(f"radwalk: error: {exc.strerror or exc}{where}", file=sys.stderr)
+        return 2
     except BrokenPipeError:  # output piped into `head` and the like
         import os
 
