@@ -28,6 +28,7 @@ import shutil
 import signal
 import sys
 import tempfile
+import time
 from pathlib import Path
 
 from radwalk.errors import ConfigError, PluginError, RadwalkError
@@ -35,6 +36,10 @@ from radwalk.host.config import RunConfig
 from radwalk.run.state import file_sha
 
 DASK_CONNECT_TIMEOUT_S = 5
+# A run stops when the scheduler has had no worker for this long: a nanny restarts a killed worker in
+# seconds and a batch system may take a minute to replace one; longer means every worker is gone.
+NO_WORKERS_GRACE_S = 120.0
+_POLL_S = 1.0  # how often a waiting run asks the scheduler how many workers it has
 
 
 def _upload_name(sha: str) -> str:
@@ -194,13 +199,40 @@ class _DaskExecutor:
         return self.client.submit(_star_task, *args, pure=False)
 
     def wait(self, pending):
+        """(done, rest) once a star finishes; RadwalkError when the scheduler has had no worker for a while.
+
+        Without that check a run whose every worker died (or was stopped) would wait forever: the
+        scheduler keeps the stars queued for workers that never come.
+        """
+        import asyncio
+
         from distributed import wait
 
-        done, rest = wait(list(pending), return_when="FIRST_COMPLETED")
-        return set(done), set(rest)
+        alone_since = None
+        while True:
+            try:
+                done, rest = wait(list(pending), timeout=_POLL_S, return_when="FIRST_COMPLETED")
+                return set(done), set(rest)
+            except (TimeoutError, asyncio.TimeoutError):
+                pass
+            if self.client.nthreads():
+                alone_since = None
+                continue
+            now = time.monotonic()
+            alone_since = alone_since or now
+            if now - alone_since >= NO_WORKERS_GRACE_S:
+                raise RadwalkError(f"no Dask worker has been connected to the scheduler for "
+                                   f"{NO_WORKERS_GRACE_S:g} s, so no star can run; the stars already done stay "
+                                   "done: start workers and run the same command again to resume")
 
     def result(self, fut):
-        return fut.result()
+        from distributed import KilledWorker
+
+        try:
+            return fut.result()
+        except KilledWorker as exc:
+            raise RadwalkError(f"a star's Dask worker died every time it was tried ({exc}); run the same "
+                               "command again to resume") from None
 
     def close(self, cancel: bool = False):
         try:

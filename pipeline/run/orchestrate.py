@@ -278,6 +278,10 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         if problem is None:
             raise
         raise problem from None
+    except RadwalkError as exc:  # the executor stopped the run (no Dask worker left, say): in the log too
+        if handler is not None:
+            LOG.error("stopped: %s", exc)
+        raise
     finally:
         if ex is not None:
             ex.close(cancel=cancel)
