@@ -62,6 +62,13 @@ CATALOG_COLUMNS = ("id", "radius", "radius_err", "luminosity", "luminosity_err",
                    "feh", "feh_err")
 
 
+# Largest sampler settings a run accepts: beyond these a fit would exhaust memory or never end, and each star
+# would fail with an internal error instead of the config being refused (common practice, no source: emcee
+# needs only a few times as many walkers as parameters).
+_SAMPLER_MAX = {"walkers": 4096, "chunk": 1_000_000, "max_steps": 100_000_000, "optimizer_starts": 1000,
+                "derived_samples": 1_000_000}
+
+
 @dataclass(frozen=True)
 class SamplerConfig:
     walkers: int = 32
@@ -77,6 +84,9 @@ class SamplerConfig:
             v = getattr(self, name)
             if not isinstance(v, int) or isinstance(v, bool) or v < 1:
                 raise ConfigError(f"sampler.{name} must be a positive integer, got {v!r}")
+        for name, most in _SAMPLER_MAX.items():
+            if getattr(self, name) > most:
+                raise ConfigError(f"sampler.{name} = {getattr(self, name)} is more than {most}, the most a run allows")
         for name in ("tau_multiple", "tau_change"):
             v = getattr(self, name)
             if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):

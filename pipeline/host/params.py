@@ -19,6 +19,9 @@ from radwalk.errors import ConfigError
 # Least fraction of a normal's mass a truncated normal prior must hold between its bounds (a bound 4.75 sigma
 # beyond the mean): less is almost surely a mistaken mean or unit, and leaves the prior a sliver.
 _MIN_NORMAL_MASS = 1e-6
+# Narrowest prior (width over the bounds' size) a sampler can move in: a few ulp leave the walkers no room
+# and the optimizer and the stretch moves nothing to work with.
+_MIN_RELATIVE_WIDTH = 1e-9
 
 
 @dataclass(frozen=True)
@@ -65,6 +68,13 @@ class Prior:
             raise ConfigError(
                 f"impossible prior: lower bound {self.lower:g} is not below upper bound {self.upper:g}"
             )
+        if math.isfinite(self.lower) and math.isfinite(self.upper):
+            scale = max(abs(self.lower), abs(self.upper), np.finfo(float).tiny)
+            if self.upper - self.lower <= _MIN_RELATIVE_WIDTH * scale:
+                raise ConfigError(
+                    f"{self.kind} prior on [{self.lower!r}, {self.upper!r}] is too narrow to sample (width "
+                    f"{self.upper - self.lower:.3g}); hold the parameter fixed under [settings] instead"
+                )
         if self.kind in ("log-uniform", "salpeter", "kroupa") and self.lower <= 0:
             raise ConfigError(f"{self.kind} prior needs a positive lower bound, got {self.lower:g}")
         if self.kind in ("normal", "truncated-normal"):

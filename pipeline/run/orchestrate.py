@@ -235,13 +235,18 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
     if old and not force:
         state["first_started"] = old.get("first_started", state["first_started"])
     components = check_config(config)
+    outcome_notes = list(catalog.notices)
     todo = [e for e in catalog if e.star is not None
             and (force or load_done(star_folder(out, e.id), e.star, config) is None)]
+    if not scheduler:  # processes this machine starts: no more than its cores, nor than stars to compute
+        workers, note = capped_workers(workers, len(todo))
+        if note:
+            outcome_notes.append(note)
     # The executor starts before any file is written, so an unanswering scheduler changes nothing.
     ex = make_executor(executor, workers, scheduler, config, hashes if executor == "dask" else {}) if todo else None
     cancel = True
     outcome = RunOutcome(out, out / SUMMARY_ECSV, out / SUMMARY_FITS, out / RUN_TOML,
-                         stars=len(catalog), notices=list(catalog.notices))
+                         stars=len(catalog), notices=outcome_notes)
     handler = None
     try:
         if force:  # every star is recomputed: a killed forced run must not resume from old results
@@ -252,7 +257,7 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         LOG.info("run of %s (%d stars, sha256 %s) into %s; executor %s, %d worker(s), seed %d%s",
                  catalog.path, len(catalog), catalog.fingerprint[:12], out, executor, workers, config.seed,
                  ", forced" if force else "")
-        for note in catalog.notices:
+        for note in outcome_notes:
             LOG.info("notice: %s", note)
         waiting = {e.row for e in todo}
         for e in catalog:
@@ -330,6 +335,19 @@ def _environment_stop(exc: BaseException, logged: bool) -> EnvironmentProblem | 
     if logged:
         LOG.error(message)
     return EnvironmentProblem(message)
+
+
+def capped_workers(requested: int, stars: int) -> tuple[int, str]:
+    """Worker processes to start on this machine, and a notice when the request was cut to its cores.
+
+    More processes than cores only share them (each star's fit is one CPU-bound process), and more
+    than stars to compute sit idle; ``--workers 1000`` once started one process per star.
+    """
+    cores = os.cpu_count() or 1
+    n = max(1, min(int(requested), cores, max(1, int(stars))))
+    note = (f"--workers {requested} is more than this machine's {cores} cores; {min(int(requested), cores)} "
+            "started") if requested > cores else ""
+    return n, note
 
 
 def _count(outcome: RunOutcome, status: str):
