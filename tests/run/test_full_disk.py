@@ -70,11 +70,7 @@ def test_full_disk_marks_no_star_done_and_resume_equals_a_clean_run(tmp_path):
     runner.write_text(textwrap.dedent(f"""\
         import sys
         from radwalk.errors import RadwalkError
-        from radwalk.errors import EnvironmentProblem, environment_cause
-from radwalk.inference.fit import fit_star
-from radwalk.inference.star import Star
-from radwalk.results import files
-from radwalk.run.orchestrate import load_run_config, run_catalog
+        from radwalk.run.orchestrate import load_run_config, run_catalog
         if __name__ == "__main__":
             try:
                 run_catalog({str(cat)!r}, sys.argv[1], load_run_config({str(cfg)!r}), workers=1, report=False,
