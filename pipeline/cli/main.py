@@ -48,7 +48,10 @@ def main(argv=None):
     except RadwalkError as exc:
         print(f"radwalk: error: {exc}", file=sys.stderr)
         return 2
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
+        if type(exc).__name__ == "Terminated":  # SIGTERM during a run (radwalk.run.orchestrate)
+            print("radwalk: terminated; run the same command again to resume", file=sys.stderr)
+            return 128 + 15
         print("radwalk: interrupted", file=sys.stderr)
         return 130
     except (IsADirectoryError, NotADirectoryError, PermissionError, FileNotFoundError) as exc:

@@ -37,7 +37,7 @@ from radwalk.inference.posterior import Posterior
 from radwalk.inference.sampler import run_chain
 from radwalk.inference.star import Star, seed_for
 from radwalk.results.document import PERCENTILES, PPC_POOR, result_document
-from radwalk.results.files import write_json
+from radwalk.results.files import remove_leftovers, write_json
 from radwalk.results.layout import STAR_SUMMARY, chain_file_name
 from radwalk.results.products import FitProducts
 
@@ -234,6 +234,8 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> 
     """
     t0 = time.perf_counter()
     folder = Path(outdir) if outdir else None
+    if folder is not None:
+        remove_leftovers(folder)  # half-written files of an earlier, killed attempt at this star
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ValidityWarning)  # collected into the summary instead

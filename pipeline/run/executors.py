@@ -105,8 +105,11 @@ def _die_with_parent():
 
 
 def _pool_init():
-    # The parent handles Ctrl-C and stops the pool; workers must not each print a traceback.
+    # The parent handles Ctrl-C and SIGTERM (sent to the whole process group by a terminal or a batch
+    # scheduler) and stops the pool; workers must not each print a traceback, nor die first and make the
+    # run report a dead worker instead of the interruption.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_IGN)
     os.environ.setdefault("MPLBACKEND", "Agg")
     _die_with_parent()
 
@@ -148,7 +151,7 @@ class _LocalExecutor:
             self.pool.shutdown(wait=False, cancel_futures=True)
             for p in procs:  # stop the stars in flight now: they are recomputed on resume
                 if p.is_alive():
-                    p.terminate()
+                    p.kill()  # SIGKILL: the workers ignore SIGTERM (see _pool_init)
         else:
             self.pool.shutdown(wait=True)
 

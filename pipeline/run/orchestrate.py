@@ -20,9 +20,11 @@ from __future__ import annotations
 import logging
 import math
 import os
+import signal
 import sys
 import time
 import warnings
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
@@ -37,11 +39,13 @@ from radwalk.errors import (
 )
 from radwalk.host.config import RunConfig, to_toml
 from radwalk.results.document import document, result_document
-from radwalk.results.files import write_json, write_table, write_text
+from radwalk.results.files import remove_leftovers, write_json, write_table, write_text
 from radwalk.results.layout import (
     LOG_FILE,
+    REPORT_DIR,
     RUN_TOML,
     STAR_SUMMARY,
+    STARS_DIR,
     STATE_FILE,
     SUMMARY_ECSV,
     SUMMARY_FITS,
@@ -222,14 +226,48 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
             raise CatalogError(f"star ids {folders[name.lower()]!r} and {e.id!r} map to the same folder {name!r}")
         folders[name.lower()] = e.id
 
-    out = prepare_output(out_dir, force)
-    with folder_lock(out):
-        return _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet, plots,
-                           t0, started)
+    # A named scheduler is asked first: one that does not answer leaves no output folder behind.
+    ex = make_executor(executor, workers, scheduler, config, hashes) if scheduler else None
+    try:
+        out = prepare_output(out_dir, force)
+        with folder_lock(out), _sigterm_interrupts():
+            return _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet,
+                               plots, t0, started, ex)
+    except BaseException:
+        if ex is not None:
+            ex.close(cancel=True)
+        raise
 
 
-def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet, plots, t0, started):
-    """run_catalog's work once it holds the output folder's lock."""
+class Terminated(KeyboardInterrupt):
+    """SIGTERM (what batch schedulers send) stopped the run; handled like Ctrl-C."""
+
+
+@contextmanager
+def _sigterm_interrupts():
+    """SIGTERM raises :class:`Terminated` in the run (main thread only) so it stops as Ctrl-C does."""
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def handler(signum, frame):
+        raise Terminated()
+
+    previous = signal.signal(signal.SIGTERM, handler)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet, plots, t0, started,
+                ex=None):
+    """run_catalog's work once it holds the output folder's lock (``ex``: an executor already connected)."""
+    # a killed run's half-written files: nothing else writes here while the lock is held
+    for folder in (out, out / REPORT_DIR, *(p for p in (out / STARS_DIR).iterdir() if p.is_dir())):
+        remove_leftovers(folder)
     state = new_state(catalog, config, hashes)
     old = check_state(out, state, force)
     if old and not force:
@@ -243,7 +281,11 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         if note:
             outcome_notes.append(note)
     # The executor starts before any file is written, so an unanswering scheduler changes nothing.
-    ex = make_executor(executor, workers, scheduler, config, hashes if executor == "dask" else {}) if todo else None
+    if ex is None and todo:
+        ex = make_executor(executor, workers, scheduler, config, hashes if executor == "dask" else {})
+    elif ex is not None and not todo:
+        ex.close()
+        ex = None
     cancel = True
     outcome = RunOutcome(out, out / SUMMARY_ECSV, out / SUMMARY_FITS, out / RUN_TOML,
                          stars=len(catalog), notices=outcome_notes)
@@ -274,9 +316,10 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         if todo:
             _compute(ex, todo, out, config, hashes if executor == "dask" else None, plots, quiet, outcome)
         cancel = False
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
         if handler is not None:
-            LOG.warning("interrupted; run the same command again to resume")
+            how = " (SIGTERM)" if isinstance(exc, Terminated) else ""
+            LOG.warning("interrupted%s; run the same command again to resume", how)
         raise
     except (EnvironmentProblem, OSError, MemoryError) as exc:
         problem = _environment_stop(exc, handler is not None)
