@@ -48,9 +48,17 @@ def main(argv=None):
     except RadwalkError as exc:
         print(f"radwalk: error: {exc}", file=sys.stderr)
         return 2
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
+        if type(exc).__name__ == "Terminated":  # SIGTERM during a run (radwalk.run.orchestrate)
+            print("radwalk: terminated; run the same command again to resume", file=sys.stderr)
+            return 128 + 15
         print("radwalk: interrupted", file=sys.stderr)
         return 130
+    except (IsADirectoryError, NotADirectoryError, PermissionError, FileNotFoundError) as exc:
+        # a path the user gave that cannot be used: one line, like every other input error
+        where = f": {exc.filename}" if exc.filename else ""
+        print(f"radwalk: error: {exc.strerror or exc}{where}", file=sys.stderr)
+        return 2
     except BrokenPipeError:  # output piped into `head` and the like
         import os
 

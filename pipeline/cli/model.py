@@ -29,8 +29,14 @@ def add_model_parser(sub, common):
 
 
 def cmd_model(args):
+    from pathlib import Path
+
     from radwalk.api import one_star
+    from radwalk.errors import ConfigError
     from radwalk.forward.one_star import format_summary
+
+    if args.profile_out and Path(args.profile_out).is_dir():
+        raise ConfigError(f"--profile-out {args.profile_out} is a folder; give a file name (e.g. profile.ecsv)")
 
     stages_named = {s.name: getattr(args, s.name) for s in STAGE_TABLE if s.forward and getattr(args, s.name)}
     interior = one_star(args.mass, args.X, args.Z, stages=stages_named, settings=parse_set(args.set),

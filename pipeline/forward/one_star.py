@@ -106,6 +106,11 @@ def model_star(stages: StageSet, mass: float, X: float, Z: float, settings: dict
         notes.append(f"profile {stages.profile.name!r} has X = {X_model:.4g} at Z = {Z:.4g} (its own composition "
                      f"rule), not the X = {X:.4g} asked for; the summary gives its X")
         X = X_model
+    ratio = float(np.atleast_1d(tr.scalars.get("eddington_ratio", [np.nan]))[0])
+    if ratio > 1.0:  # radiation pressure on electrons beats gravity at the surface (Kippenhahn et al., 22.10)
+        notes.append(f"L = {L[0] / k.L_SUN:.3g} L_sun is {ratio:.3g} times the Eddington luminosity of a {mass:g} "
+                     "M_sun star: radiation would drive its surface away, so no star in hydrostatic equilibrium "
+                     "has it; the model is outside its validity")
     r_rel = prof.r[0] / prof.R[0]
     teff = (L[0] / (4 * np.pi * R[0] ** 2 * k.SIGMA_SB)) ** 0.25
     age = float(np.atleast_1d(values["age"])[0]) if "age" in values else np.nan  # NaN: a model without an age

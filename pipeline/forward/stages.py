@@ -16,7 +16,7 @@ import numpy as np
 from radwalk import constants as k
 from radwalk.constants import X_SUN, Z_SUN
 from radwalk.errors import ConfigError, ModelError
-from radwalk.host.components import BoundOpacity, Profile
+from radwalk.host.components import BoundOpacity, Profile, call_component
 from radwalk.host.params import Param, Prior
 from radwalk.host.registry import Registry, suggest
 from radwalk.host.stages import DEFAULTS, STAGES
@@ -139,15 +139,16 @@ class StageSet:
         rel_kw = self.stage_kwargs("relation", values)
         grid = self._grid(values) if use_grid else None
         if grid is None:
-            R, L = self.relation.predict(m_sun * k.M_SUN, X, Z, self.bound_opacity(values), **rel_kw)
+            R, L = call_component(f"relation {self.relation.name!r}", self.relation.predict, m_sun * k.M_SUN, X, Z,
+                                  self.bound_opacity(values), **rel_kw)
         else:
             R, L, inside = grid(m_sun, X, Z)
             if not inside.all():
                 out = ~inside
                 sub = {name: (v[out] if np.ndim(v) and np.size(v) == n else v) for name, v in values.items()}
-                R[out], L[out] = self.relation.predict(
-                    m_sun[out] * k.M_SUN, X[out], Z[out], self.bound_opacity(sub),
-                    **self.stage_kwargs("relation", sub))
+                R[out], L[out] = call_component(
+                    f"relation {self.relation.name!r}", self.relation.predict, m_sun[out] * k.M_SUN, X[out], Z[out],
+                    self.bound_opacity(sub), **self.stage_kwargs("relation", sub))
         return {"radius": R, "luminosity": L, "teff": teff_from(R, L)}
 
     def _grid(self, values: dict):
@@ -187,7 +188,7 @@ class StageSet:
             takes_opacity = False
         if takes_opacity:
             kwargs["opacity"] = self.bound_opacity(values)
-        return method(M, X, Z, **kwargs)
+        return call_component(f"{stage} {getattr(self, stage).name!r}", method, M, X, Z, **kwargs)
 
     def hydrogen_stage(self) -> str | None:
         """The stage whose component sets X from Z (an optional ``hydrogen_fraction`` method), or None.
@@ -215,7 +216,7 @@ class StageSet:
                 kwargs["opacity"] = self.bound_opacity(values)
         except (TypeError, ValueError):
             pass
-        return np.asarray(comp.hydrogen_fraction(Z, **kwargs), dtype=float)
+        return np.asarray(call_component(f"{stage} {comp.name!r}", comp.hydrogen_fraction, Z, **kwargs), dtype=float)
 
     def prior_density_stages(self) -> list[str]:
         """The stages whose component adds a joint prior density (an optional ``log_prior_density`` method)."""
@@ -312,7 +313,7 @@ class StageSet:
         kwargs = self.stage_kwargs("profile", values)
         if self.profile_takes_opacity:
             kwargs["opacity"] = opacity
-        prof = self.profile.profile(M, R, X, Z, **kwargs)
+        prof = call_component(f"profile {self.profile.name!r}", self.profile.profile, M, R, X, Z, **kwargs)
         if getattr(self.profile, "sets_radius", False) and prof.L is not None:
             L = np.asarray(prof.L, dtype=float)[:, -1]  # a solved star's own luminosity, whatever the relation said
         tr = transport.compute(prof, opacity, L)

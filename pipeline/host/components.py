@@ -22,6 +22,44 @@ from radwalk.host.params import Param, Validity
 OBSERVABLES = ("radius", "luminosity", "teff")
 
 
+def read_only(a):
+    """A read-only view of an array (anything else as it is); a dict's arrays likewise, in a new dict.
+
+    Components receive their inputs so: the host's profile fields, predictions and
+    per-sample values are shared with later steps, and a component that wrote into
+    them would corrupt those silently (a density scaled in place changes the
+    central density reported afterwards).
+    """
+    if isinstance(a, np.ndarray):
+        if not a.flags.writeable:
+            return a
+        v = a.view()
+        v.flags.writeable = False
+        return v
+    if isinstance(a, dict):
+        return {key: read_only(v) for key, v in a.items()}
+    return a
+
+
+def call_component(what: str, method, *args, **kwargs):
+    """``method(*args, **kwargs)`` with every array read-only (:func:`read_only`).
+
+    Raises
+    ------
+    PluginError
+        Naming ``what`` (e.g. ``opacity 'my-law'``) when the component writes into an input.
+    """
+    try:
+        return method(*(read_only(a) for a in args), **{key: read_only(v) for key, v in kwargs.items()})
+    except ValueError as exc:
+        if "read-only" not in str(exc):
+            raise
+        from radwalk.errors import PluginError
+
+        raise PluginError(f"{what} writes into its input arrays ({exc}); they are shared and read-only: copy an "
+                          "array before changing it (`radwalk check-plugin` names the input)", plugin=what) from None
+
+
 def per_sample(a, like):
     """Reshapes a per-sample array ``[n]`` (or scalar) to broadcast against ``like``."""
     a = np.asarray(a, dtype=float)
@@ -208,4 +246,5 @@ class BoundOpacity:
         like = np.broadcast(np.asarray(rho), np.asarray(T))
         ref = np.empty(like.shape) if like.ndim > 1 else np.asarray(rho)
         kw = {k: per_sample(v, ref) for k, v in self.params.items()}
-        return self.law.kappa(rho, T, per_sample(X, ref), per_sample(Z, ref), **kw)
+        return call_component(f"opacity {self.law.name!r}", self.law.kappa, rho, T, per_sample(X, ref),
+                              per_sample(Z, ref), **kw)

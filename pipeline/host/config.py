@@ -42,6 +42,7 @@ Unknown keys are refused with the closest valid key suggested.
 
 from __future__ import annotations
 
+import math
 import sys
 from dataclasses import asdict, dataclass, field, fields, replace
 from pathlib import Path
@@ -61,6 +62,13 @@ CATALOG_COLUMNS = ("id", "radius", "radius_err", "luminosity", "luminosity_err",
                    "feh", "feh_err")
 
 
+# Largest sampler settings a run accepts: beyond these a fit would exhaust memory or never end, and each star
+# would fail with an internal error instead of the config being refused (common practice, no source: emcee
+# needs only a few times as many walkers as parameters).
+_SAMPLER_MAX = {"walkers": 4096, "chunk": 1_000_000, "max_steps": 100_000_000, "optimizer_starts": 1000,
+                "derived_samples": 1_000_000}
+
+
 @dataclass(frozen=True)
 class SamplerConfig:
     walkers: int = 32
@@ -76,6 +84,13 @@ class SamplerConfig:
             v = getattr(self, name)
             if not isinstance(v, int) or isinstance(v, bool) or v < 1:
                 raise ConfigError(f"sampler.{name} must be a positive integer, got {v!r}")
+        for name, most in _SAMPLER_MAX.items():
+            if getattr(self, name) > most:
+                raise ConfigError(f"sampler.{name} = {getattr(self, name)} is more than {most}, the most a run allows")
+        for name in ("tau_multiple", "tau_change"):
+            v = getattr(self, name)
+            if isinstance(v, bool) or not isinstance(v, (int, float)) or not math.isfinite(v):
+                raise ConfigError(f"sampler.{name} must be a finite number, got {v!r}")
         if self.walkers < 8 or self.walkers % 2:
             raise ConfigError(f"sampler.walkers must be an even number >= 8, got {self.walkers}")
         if not self.tau_multiple > 0 or not 0 < self.tau_change < 1:
@@ -141,6 +156,20 @@ def _reject_unknown(where: str, keys, allowed):
             )
 
 
+def _number(where: str, v, what: str = "a number") -> float:
+    """``v`` as a float if it is a TOML number (not a boolean), else ConfigError naming ``where``."""
+    if isinstance(v, bool) or not isinstance(v, (int, float)):
+        raise ConfigError(f"{where} must be {what}, got {v!r}")
+    return float(v)
+
+
+def _solar(met: dict, key: str, default: float) -> float:
+    v = _number(f"[metallicity] {key}", met.get(key, default), "a mass fraction between 0 and 1")
+    if not (math.isfinite(v) and 0.0 < v < 1.0):
+        raise ConfigError(f"[metallicity] {key} must be a mass fraction between 0 and 1, got {v!r}")
+    return v
+
+
 def from_dict(data: dict, base_dir: Path | None = None) -> RunConfig:
     """Validates a parsed TOML document into a RunConfig.
 
@@ -171,12 +200,14 @@ def from_dict(data: dict, base_dir: Path | None = None) -> RunConfig:
         _reject_unknown(f"[priors.{name}] ", spec, _PRIOR_KEYS)
         if "kind" not in spec:
             raise ConfigError(f"[priors.{name}] needs a kind")
+        if not isinstance(spec["kind"], str):
+            raise ConfigError(f"[priors.{name}] kind must be a string (one of {', '.join(Prior.KINDS)}), "
+                              f"got {spec['kind']!r}")
+        nums = {key: _number(f"[priors.{name}] {key}", spec[key]) for key in ("lower", "upper", "mean", "sigma")
+                if key in spec}
         try:
-            priors[name] = Prior(
-                spec["kind"], float(spec.get("lower", float("-inf"))), float(spec.get("upper", float("inf"))),
-                None if "mean" not in spec else float(spec["mean"]),
-                None if "sigma" not in spec else float(spec["sigma"]),
-            )
+            priors[name] = Prior(spec["kind"], nums.get("lower", float("-inf")), nums.get("upper", float("inf")),
+                                 nums.get("mean"), nums.get("sigma"))
         except ConfigError as exc:
             raise ConfigError(f"[priors.{name}]: {exc}") from None
     try:
@@ -184,13 +215,26 @@ def from_dict(data: dict, base_dir: Path | None = None) -> RunConfig:
     except TypeError as exc:
         raise ConfigError(f"[sampler]: {exc}") from None
     met = data.get("metallicity", {})
+    solar_z, solar_x = _solar(met, "solar_z", Z_SUN), _solar(met, "solar_x", X_SUN)
+    if solar_z + solar_x >= 1.0:
+        raise ConfigError(f"[metallicity] solar_x + solar_z = {solar_x + solar_z:g} must be below 1")
+    columns = dict(data.get("columns", {}))
+    for key, v in columns.items():
+        if not isinstance(v, str) or not v:
+            raise ConfigError(f"[columns] {key} must be a column name (a non-empty string), got {v!r}")
     run = data.get("run", {})
+    raw_plugins = run.get("plugins", [])
+    if not isinstance(raw_plugins, list):
+        raise ConfigError(f"[run] plugins must be a list of plugin file paths, got {raw_plugins!r}")
+    for p in raw_plugins:
+        if not isinstance(p, str) or not p:
+            raise ConfigError(f"[run] plugins must be a list of plugin file paths (strings), got {p!r}")
     plugins = tuple(
         str((base_dir / p).resolve()) if base_dir and not Path(p).is_absolute() else str(p)
-        for p in run.get("plugins", [])
+        for p in raw_plugins
     )
     seed = run.get("seed", 1)
-    if not isinstance(seed, int) or seed < 0:
+    if isinstance(seed, bool) or not isinstance(seed, int) or seed < 0:
         raise ConfigError(f"[run] seed must be a non-negative integer, got {seed!r}")
     settings = dict(data.get("settings", {}))
     for k, v in settings.items():
@@ -198,8 +242,7 @@ def from_dict(data: dict, base_dir: Path | None = None) -> RunConfig:
             raise ConfigError(f"[settings] {k} must be a number or a string, got {v!r}")
     return RunConfig(
         stages=stages, settings=settings, priors=priors, sampler=sampler,
-        solar_z=float(met.get("solar_z", Z_SUN)), solar_x=float(met.get("solar_x", X_SUN)),
-        columns=dict(data.get("columns", {})), seed=seed, plugins=plugins,
+        solar_z=solar_z, solar_x=solar_x, columns=columns, seed=seed, plugins=plugins,
     )
 
 
@@ -207,9 +250,15 @@ def load(path) -> RunConfig:
     """Reads and validates a run.toml."""
     path = Path(path)
     try:
-        text = path.read_text()
+        raw = path.read_bytes()
     except OSError as exc:
         raise ConfigError(f"cannot read config {path}: {exc.strerror}") from None
+    try:
+        text = raw.decode("utf-8-sig")  # a byte-order mark, as some editors save, is no error
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        raise ConfigError(f"config {path} is not UTF-8 text (byte {raw[exc.start]:#04x} on line {line}); save it "
+                          "as UTF-8") from None
     try:
         data = tomllib.loads(text)
     except tomllib.TOMLDecodeError as exc:

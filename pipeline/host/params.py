@@ -12,8 +12,16 @@ import math
 from dataclasses import dataclass, field
 
 import numpy as np
+from scipy import special
 
 from radwalk.errors import ConfigError
+
+# Least fraction of a normal's mass a truncated normal prior must hold between its bounds (a bound 4.75 sigma
+# beyond the mean): less is almost surely a mistaken mean or unit, and leaves the prior a sliver.
+_MIN_NORMAL_MASS = 1e-6
+# Narrowest prior (width over the bounds' size) a sampler can move in: a few ulp leave the walkers no room
+# and the optimizer and the stretch moves nothing to work with.
+_MIN_RELATIVE_WIDTH = 1e-9
 
 
 @dataclass(frozen=True)
@@ -45,6 +53,14 @@ class Prior:
             raise ConfigError(
                 f"unknown prior kind {self.kind!r}; allowed: {', '.join(self.KINDS)}"
             )
+        for key in ("lower", "upper", "mean", "sigma"):
+            v = getattr(self, key)
+            if v is None and key in ("mean", "sigma"):
+                continue
+            if isinstance(v, bool) or not isinstance(v, (int, float, np.integer, np.floating)):
+                raise ConfigError(f"{self.kind} prior: {key} must be a number, got {v!r}")
+            if math.isnan(v):
+                raise ConfigError(f"{self.kind} prior: {key} is NaN")
         if not (np.isfinite(self.lower) and np.isfinite(self.upper)):
             if self.kind != "normal":
                 raise ConfigError(f"{self.kind} prior needs finite bounds")
@@ -52,11 +68,39 @@ class Prior:
             raise ConfigError(
                 f"impossible prior: lower bound {self.lower:g} is not below upper bound {self.upper:g}"
             )
+        if math.isfinite(self.lower) and math.isfinite(self.upper):
+            scale = max(abs(self.lower), abs(self.upper), np.finfo(float).tiny)
+            if self.upper - self.lower <= _MIN_RELATIVE_WIDTH * scale:
+                raise ConfigError(
+                    f"{self.kind} prior on [{self.lower!r}, {self.upper!r}] is too narrow to sample (width "
+                    f"{self.upper - self.lower:.3g}); hold the parameter fixed under [settings] instead"
+                )
         if self.kind in ("log-uniform", "salpeter", "kroupa") and self.lower <= 0:
             raise ConfigError(f"{self.kind} prior needs a positive lower bound, got {self.lower:g}")
         if self.kind in ("normal", "truncated-normal"):
-            if self.mean is None or self.sigma is None or not self.sigma > 0:
+            if self.mean is None or self.sigma is None:
                 raise ConfigError(f"{self.kind} prior needs a mean and a positive sigma")
+            if not (math.isfinite(self.mean) and math.isfinite(self.sigma) and self.sigma > 0):
+                raise ConfigError(f"{self.kind} prior needs a finite mean and a finite positive sigma, "
+                                  f"got mean {self.mean:g}, sigma {self.sigma:g}")
+            mass = self._normal_mass()
+            if not mass >= _MIN_NORMAL_MASS:
+                raise ConfigError(
+                    f"{self.kind} prior({self.mean:g}, {self.sigma:g}) holds {mass:.2g} of its mass inside its "
+                    f"bounds [{self.lower:g}, {self.upper:g}] (at least {_MIN_NORMAL_MASS:g} needed): is the mean "
+                    "or sigma in the wrong unit?"
+                )
+
+    def _standard_bounds(self):
+        """Bounds in sigma from the mean, mirrored into the lower tail (where ndtr keeps its precision)."""
+        a = (self.lower - self.mean) / self.sigma
+        b = (self.upper - self.mean) / self.sigma
+        return (-b, -a, -1.0) if a > 0 else (a, b, 1.0)
+
+    def _normal_mass(self) -> float:
+        """Fraction of the untruncated normal's mass inside the bounds."""
+        a, b, _ = self._standard_bounds()
+        return float(special.ndtr(b) - special.ndtr(a))
 
     def logpdf(self, x):
         """Log prior density (unnormalised for the IMF kinds), ``-inf`` outside."""
@@ -83,27 +127,51 @@ class Prior:
         return np.where(inside, val, -np.inf)
 
     def sample(self, rng: np.random.Generator, size: int):
-        """Draws from the prior (rejection for the shaped kinds)."""
+        """Draws from the prior by inverting its distribution function (no rejection loop).
+
+        The normal kinds invert the standard normal's distribution function
+        between the bounds, mirrored into the lower tail so a bound several
+        sigma out keeps its precision; the IMF kinds are piecewise power laws
+        whose distribution function inverts in closed form.
+        """
         if self.kind == "uniform":
             return rng.uniform(self.lower, self.upper, size)
         if self.kind == "log-uniform":
             return np.exp(rng.uniform(math.log(self.lower), math.log(self.upper), size))
         if self.kind == "normal" and not np.isfinite(self.lower) and not np.isfinite(self.upper):
             return rng.normal(self.mean, self.sigma, size)
-        out = np.empty(0)
-        lo, hi = self.lower, self.upper
         if self.kind in ("normal", "truncated-normal"):
-            while out.size < size:
-                d = rng.normal(self.mean, self.sigma, 4 * size + 16)
-                out = np.concatenate([out, d[(d >= lo) & (d <= hi)]])
-            return out[:size]
-        # IMF kinds: propose log-uniform, accept with density ratio
-        while out.size < size:
-            d = np.exp(rng.uniform(math.log(lo), math.log(hi), 8 * size + 16))
-            w = self.logpdf(d) + np.log(d)
-            keep = np.log(rng.uniform(size=d.size)) < w - w.max()
-            out = np.concatenate([out, d[keep]])
-        return out[:size]
+            a, b, sign = self._standard_bounds()
+            pa, pb = special.ndtr(a), special.ndtr(b)
+            z = special.ndtri(pa + rng.uniform(size=size) * (pb - pa))
+            return np.clip(self.mean + sign * self.sigma * z, self.lower, self.upper)
+        return self._sample_power_laws(rng, size)
+
+    def _sample_power_laws(self, rng, size):
+        """Inverse-CDF draws from a piecewise power law dN/dM ~ M^-alpha (the IMF kinds)."""
+        if self.kind == "salpeter":
+            pieces = [(self.lower, self.upper, 2.35)]
+        else:
+            edges = [self.lower] + [e for e in (0.08, 0.5) if self.lower < e < self.upper] + [self.upper]
+            pieces = [(lo, hi, 0.3 if hi <= 0.08 else 1.3 if hi <= 0.5 else 2.3)
+                      for lo, hi in zip(edges[:-1], edges[1:])]
+        # weight of each piece: the integral of exp(logpdf) over it, from the density at its lower end
+        weights = []
+        for lo, hi, alpha in pieces:
+            k = 1.0 - alpha
+            c = math.exp(float(self.logpdf(lo))) * lo**alpha
+            weights.append(c * (math.log(hi / lo) if abs(k) < 1e-12 else (hi**k - lo**k) / k))
+        which = rng.choice(len(pieces), size=size, p=np.asarray(weights) / sum(weights))
+        u = rng.uniform(size=size)
+        out = np.empty(size)
+        for i, (lo, hi, alpha) in enumerate(pieces):
+            sel = which == i
+            k = 1.0 - alpha
+            if abs(k) < 1e-12:
+                out[sel] = lo * (hi / lo) ** u[sel]
+            else:
+                out[sel] = (lo**k + u[sel] * (hi**k - lo**k)) ** (1.0 / k)
+        return np.clip(out, self.lower, self.upper)
 
     def describe(self) -> str:
         """Short human description, e.g. ``uniform[0.5, 2]``."""

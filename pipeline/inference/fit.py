@@ -18,7 +18,16 @@ from pathlib import Path
 
 import numpy as np
 
-from radwalk.errors import CatalogError, ConfigError, ModelError, PluginError, RadwalkError, ValidityWarning
+from radwalk.errors import (
+    CatalogError,
+    ConfigError,
+    EnvironmentProblem,
+    ModelError,
+    PluginError,
+    RadwalkError,
+    ValidityWarning,
+    environment_cause,
+)
 from radwalk.forward.quantities import output_unit
 from radwalk.forward.stages import StageSet
 from radwalk.host.config import RunConfig
@@ -28,7 +37,7 @@ from radwalk.inference.posterior import Posterior
 from radwalk.inference.sampler import run_chain
 from radwalk.inference.star import Star, seed_for
 from radwalk.results.document import PERCENTILES, PPC_POOR, result_document
-from radwalk.results.files import write_json
+from radwalk.results.files import remove_leftovers, write_json
 from radwalk.results.layout import STAR_SUMMARY, chain_file_name
 from radwalk.results.products import FitProducts
 
@@ -66,7 +75,7 @@ def stages_for(config: RunConfig, opacity: str | None = None) -> StageSet:
     return stages
 
 
-PROBE_CHECKS = ("configure", "call", "shape", "finite", "positive")
+PROBE_CHECKS = ("configure", "call", "shape", "finite", "positive", "inputs")
 PROBE_POINTS = 24
 
 
@@ -218,9 +227,18 @@ def fit_laws(star: Star, config: RunConfig, folder: Path | None = None) -> tuple
 
 
 def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> StarResult:
-    """The per-star task.  Never raises for a star's own problems: they become status 'failed'."""
+    """The per-star task.  Never raises for a star's own problems: they become status 'failed'.
+
+    Raises
+    ------
+    EnvironmentProblem
+        When the machine failed the star (no space left, an I/O error, out of
+        memory): no summary.json is written, so a later run computes the star.
+    """
     t0 = time.perf_counter()
     folder = Path(outdir) if outdir else None
+    if folder is not None:
+        remove_leftovers(folder)  # half-written files of an earlier, killed attempt at this star
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ValidityWarning)  # collected into the summary instead
@@ -241,9 +259,18 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> 
     except PluginError as exc:
         status, reason, summary = "failed", f"plugin error: {exc}", {}
     except Exception as exc:  # noqa: BLE001 - one star's crash must not stop a catalog
+        cause = environment_cause(exc)
+        if cause:
+            raise EnvironmentProblem(f"star {star.id!r}: {cause}") from None
         tb = traceback.format_exception_only(type(exc), exc)[-1].strip()
         status, reason, summary = "failed", f"internal error: {tb}", {}
     result = StarResult(star.id, status, reason, summary, time.perf_counter() - t0)
     if folder is not None:
-        write_json(folder / STAR_SUMMARY, result_document(star, config, result))
+        try:
+            write_json(folder / STAR_SUMMARY, result_document(star, config, result))
+        except OSError as exc:
+            cause = environment_cause(exc)
+            if cause:
+                raise EnvironmentProblem(f"star {star.id!r}: {cause}") from None
+            raise
     return result

@@ -14,7 +14,7 @@ import numpy as np
 
 from radwalk.errors import ConfigError
 from radwalk.forward.stages import StageSet
-from radwalk.host.components import Observations
+from radwalk.host.components import Observations, call_component
 from radwalk.host.config import RunConfig
 from radwalk.host.params import Prior
 
@@ -180,7 +180,8 @@ class Posterior:
         vals = self.values(theta)
         pred = predicted if predicted is not None else self.stages.predict(vals)
         kw = {n: vals[n] for n in self._lik_names}
-        ll = self.stages.likelihood.loglike(pred, self.observed, **kw)
+        ll = call_component(f"likelihood {self.stages.likelihood.name!r}", self.stages.likelihood.loglike, pred,
+                            self.observed, **kw)
         # a relation that finds no star (NaN) or returns nonsense (<= 0) gives no likelihood
         physical = (pred["radius"] > 0) & (pred["luminosity"] > 0)
         return np.where(physical, ll, -np.inf)

@@ -63,7 +63,12 @@ class Star:
         if all(np.isnan(vals)):
             raise CatalogError("no observable given: need at least one of radius, luminosity, teff")
         fe = None
-        if feh is not None and not (isinstance(feh, float) and np.isnan(feh)):
+        feh_nan = feh is not None and isinstance(feh, (float, np.floating)) and np.isnan(feh)
+        if feh_nan and feh_err is not None and not np.isnan(feh_err):
+            # an error without a value is a mistake, not "not measured" (the catalog reader says the same)
+            raise CatalogError(f"[Fe/H] = {feh} with an error of {feh_err} dex: give a finite [Fe/H], or neither "
+                               "(not measured)")
+        if feh is not None and not feh_nan:
             if feh_err is None or not np.isfinite(feh_err) or feh_err <= 0 or not np.isfinite(feh):
                 raise CatalogError(f"[Fe/H] = {feh} needs a finite value and a finite positive error")
             if not -5 < feh < 1.5:

@@ -15,6 +15,11 @@ from pathlib import Path
 
 import numpy as np
 
+from radwalk.results.files import ensure_space
+
+# Bytes reserved for HDF5's own structures (headers, chunk index, attributes) on top of the data of a write.
+_HDF5_OVERHEAD = 256 * 1024
+
 
 class ChainFile:
     """Appends chunks of a chain to an HDF5 file (gzip) so a running fit can be inspected."""
@@ -25,6 +30,7 @@ class ChainFile:
         self.path = Path(path)
         self.path.parent.mkdir(parents=True, exist_ok=True)
         self._h5py = h5py
+        ensure_space(self.path.parent, _HDF5_OVERHEAD)
         with h5py.File(self.path, "w") as f:
             nd = len(names)
             f.create_dataset("chain", shape=(0, walkers, nd), maxshape=(None, walkers, nd), dtype="f8",
@@ -34,6 +40,8 @@ class ChainFile:
             f.attrs["names"] = [str(n) for n in names]
 
     def append(self, chain, log_prob, **attrs):
+        # uncompressed size: gzip never needs more than that (plus its small overhead)
+        ensure_space(self.path.parent, np.asarray(chain).nbytes + np.asarray(log_prob).nbytes + _HDF5_OVERHEAD)
         with self._h5py.File(self.path, "a") as f:
             c, lp = f["chain"], f["log_prob"]
             start = c.shape[0]

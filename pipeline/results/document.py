@@ -15,6 +15,7 @@ missing or not finite is ``null``, and readers take null as "no value".
 
 from __future__ import annotations
 
+import hashlib
 import json
 from pathlib import Path
 
@@ -67,6 +68,35 @@ def document(star_id: str, status: str, reason: str, observed: dict, feh, seed: 
     }
 
 
+def star_fingerprint(star, config) -> str:
+    """sha256 of everything a star's result depends on: its catalog values, the config, the stages, the plugins.
+
+    Stored in the star's summary.json as ``fingerprint``; a resumed run reuses the
+    document only when it matches (:func:`radwalk.run.state.load_done`), so a changed
+    config, catalog row, default stage, plugin file or radwalk version is recomputed
+    even when the run-level check (state.json) is gone.  Plugin files count by
+    content, not path (a Dask worker may load an uploaded copy).
+    """
+    from radwalk.host.stages import DEFAULTS
+
+    cfg = config.to_dict()
+    cfg["run"] = {k: v for k, v in cfg["run"].items() if k != "plugins"}
+    plugins = []
+    for p in config.plugins:
+        try:
+            plugins.append(hashlib.sha256(Path(p).read_bytes()).hexdigest())
+        except OSError:
+            plugins.append(f"unreadable {p}")
+    what = {
+        "id": star.id, "observed": {k: list(v) for k, v in star.user_values().items()},
+        "feh": list(star.feh) if star.feh else None, "luminosity_derived": bool(star.luminosity_derived),
+        "config": cfg, "stages": [{**DEFAULTS, **config.stage_names(op)} for op in config.opacity_names()],
+        "plugins": sorted(plugins), "radwalk_version": __version__,
+    }
+    # NaN allowed: hashed, never written (an unmeasured T_eff is NaN)
+    return hashlib.sha256(json.dumps(what, sort_keys=True, allow_nan=True, default=float).encode()).hexdigest()
+
+
 def result_document(star, config, result) -> dict:
     """summary.json of one fitted (or failed) star.
 
@@ -77,7 +107,8 @@ def result_document(star, config, result) -> dict:
     result : radwalk.inference.fit.StarResult
     """
     return document(star.id, result.status, result.reason, star.user_values(), star.feh, config.seed,
-                    result.seconds, luminosity_derived=star.luminosity_derived, **result.summary)
+                    result.seconds, luminosity_derived=star.luminosity_derived,
+                    fingerprint=star_fingerprint(star, config), **result.summary)
 
 
 def read_document(path) -> dict | None:

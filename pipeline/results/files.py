@@ -7,9 +7,11 @@ non-finite number is ``null``.
 
 from __future__ import annotations
 
+import errno
 import json
 import math
 import os
+import shutil
 import tempfile
 from contextlib import contextmanager
 from pathlib import Path
@@ -20,12 +22,18 @@ _UMASK = os.umask(0)
 os.umask(_UMASK)
 
 
+# In the name of every temporary file radwalk writes, so that what a killed process left can be told apart
+# from anything else and removed (remove_leftovers).
+TMP_MARK = ".radwalk-tmp-"
+_SCRATCH_PREFIXES = (".radwalk-space-", ".radwalk-probe-", ".radwalk-write-test")
+
+
 @contextmanager
 def atomic_path(path, suffix: str | None = None):
     """Yields a temporary path beside ``path``; on success it replaces ``path`` atomically."""
     path = Path(path)
     path.parent.mkdir(parents=True, exist_ok=True)
-    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}.", suffix=suffix or path.suffix, dir=path.parent)
+    fd, tmp = tempfile.mkstemp(prefix=f".{path.name}{TMP_MARK}", suffix=suffix or path.suffix, dir=path.parent)
     os.close(fd)
     os.chmod(tmp, 0o666 & ~_UMASK)  # mkstemp makes 0600; outputs should read like any other file
     try:
@@ -34,6 +42,55 @@ def atomic_path(path, suffix: str | None = None):
     except BaseException:
         Path(tmp).unlink(missing_ok=True)
         raise
+
+
+def ensure_space(folder, nbytes: int):
+    """Raises OSError(ENOSPC) unless ``nbytes`` can be written in ``folder`` now.
+
+    Reserves the space in a scratch file (``posix_fallocate``, which sees quotas
+    too) and frees it again.  Called before handing writes to a library that does
+    not survive a failed write: HDF5 crashes the process (segmentation fault) when
+    it closes a file whose write hit a full disk, where a plain OSError is wanted.
+    """
+    folder = Path(folder)
+    fd, tmp = tempfile.mkstemp(prefix=".radwalk-space-", dir=folder)
+    try:
+        try:
+            os.posix_fallocate(fd, 0, max(1, int(nbytes)))
+        except OSError as exc:
+            if exc.errno not in (errno.EOPNOTSUPP, errno.EINVAL, errno.ENOSYS):
+                raise OSError(exc.errno, os.strerror(exc.errno), str(folder)) from None
+            if shutil.disk_usage(folder).free < nbytes:  # a file system without fallocate: free space only
+                raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(folder)) from None
+        except AttributeError:  # no posix_fallocate on this platform
+            if shutil.disk_usage(folder).free < nbytes:
+                raise OSError(errno.ENOSPC, os.strerror(errno.ENOSPC), str(folder)) from None
+    finally:
+        os.close(fd)
+        os.unlink(tmp)
+
+
+def remove_leftovers(folder) -> int:
+    """Removes the temporary files a killed radwalk process left in ``folder`` (not its subfolders).
+
+    Only files radwalk names so (:data:`TMP_MARK`, its scratch files) are touched.  Call it only
+    where no other process is writing: in a star's folder from the star's own task, or in a run
+    folder under the run's lock.  Returns how many were removed.
+    """
+    removed = 0
+    try:
+        entries = list(os.scandir(folder))
+    except OSError:
+        return 0
+    for entry in entries:
+        name = entry.name
+        if name.startswith(".") and (TMP_MARK in name or name.startswith(_SCRATCH_PREFIXES)) and entry.is_file():
+            try:
+                os.unlink(entry.path)
+                removed += 1
+            except OSError:
+                pass
+    return removed
 
 
 def write_text(path, text: str):

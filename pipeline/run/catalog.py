@@ -23,7 +23,10 @@ its value column.  Each such column gives one notice line.
 What stops the read (:class:`radwalk.errors.CatalogError`, one line): a file
 that is missing, unreadable, empty or without rows, a missing required column
 (id and at least one observable with its uncertainty), a unit that cannot be
-converted, rows without an id and duplicate ids.  What does not: a row with a
+converted, rows without an id and duplicate ids.  Ids are text, kept exactly as written:
+in CSV and TSV files every cell is read as text (``007`` stays ``007``, and
+``1`` and ``1.0`` are two ids); ECSV, FITS and VOTable files declare their
+column types, and a numeric id column there is the writer's choice.  What does not: a row with a
 NaN, a zero or negative uncertainty or an unphysical value becomes a failed
 entry with the reason, and the other stars run.  An empty (masked) or NaN
 value together with an empty uncertainty means "not measured" (a star may
@@ -71,6 +74,8 @@ _FORMATS = {
     ".ecsv": "ascii.ecsv", ".fits": "fits", ".fit": "fits", ".fts": "fits", ".vot": "votable",
     ".votable": "votable", ".xml": "votable", ".csv": "ascii.csv", ".tsv": "ascii.tab",
 }
+
+_TEXT_FORMATS = ("ascii.csv", "ascii.tab")  # formats without declared column types
 
 _SI_UNIT = {"radius": u.cm, "luminosity": u.erg / u.s}
 _NOMINAL = {"radius": (u.R_sun, k.R_SUN), "luminosity": (u.L_sun, k.L_SUN)}
@@ -175,12 +180,20 @@ def _read_table(path: Path, notices: list):
     if size == 0:
         raise CatalogError(f"catalog file {path} is empty")
     fmt = _format_for(path)
+    lines = _text_lines(path) if fmt in _TEXT_FORMATS else None
     # Reader warnings (a FITS file with several tables, a VOTable quirk) become notices
     # instead of stray warnings; unrecognised units are caught again column by column below.
     with warnings.catch_warnings(record=True) as caught:
         warnings.simplefilter("always")
         try:
-            table = Table.read(path, format=fmt) if fmt else Table.read(path)
+            if fmt in _TEXT_FORMATS:
+                # every cell as the text written: ids are text ("007" and "1e3" must not become 7.0 and 1000.0,
+                # nor "1" and "1.0" one id); the value columns are parsed as numbers below
+                from astropy.io import ascii as astropy_ascii
+
+                table = Table.read(lines, format=fmt, converters={"*": [astropy_ascii.convert_numpy(str)]})
+            else:
+                table = Table.read(path, format=fmt) if fmt else Table.read(path)
         except Exception as exc:  # noqa: BLE001 - every reader failure means "not a readable table"
             if fmt is None and type(exc).__name__ == "IORegistryError":
                 raise CatalogError(
@@ -196,7 +209,31 @@ def _read_table(path: Path, notices: list):
             notices.append(msg)
     if len(table) == 0:
         raise CatalogError(f"catalog {path} has no rows (columns: {', '.join(table.colnames) or 'none'})")
+    if lines is not None:
+        table.meta["radwalk_fields"] = _field_counts(lines, "\t" if fmt == "ascii.tab" else ",", len(table))
     return table, fmt or "guessed"
+
+
+def _text_lines(path: Path) -> list[str]:
+    """A text catalog's lines, a UTF-8 byte-order mark (as spreadsheets save) removed."""
+    raw = path.read_bytes()
+    try:
+        text = raw.decode("utf-8-sig")
+    except UnicodeDecodeError as exc:
+        line = raw[:exc.start].count(b"\n") + 1
+        raise CatalogError(f"catalog {path} is not UTF-8 text (byte {raw[exc.start]:#04x} on line {line}); save it "
+                           "as UTF-8") from None
+    return text.splitlines(keepends=True)
+
+
+def _field_counts(lines: list[str], delimiter: str, n_rows: int):
+    """(header fields, [fields of each data row]), or None when the rows cannot be matched to the table's."""
+    import csv
+
+    rows = [r for r in csv.reader(lines, delimiter=delimiter) if any(cell.strip() for cell in r)]
+    if len(rows) != n_rows + 1:  # comment or other lines the reader skipped: no row-by-row count
+        return None
+    return len(rows[0]), [len(r) for r in rows[1:]]
 
 
 def _resolve_columns(table, path: Path, mapping: dict, notices: list) -> dict:
@@ -206,6 +243,12 @@ def _resolve_columns(table, path: Path, mapping: dict, notices: list) -> dict:
         bad = sorted(unknown)[0]
         raise CatalogError(f"column map names {bad!r}{suggest(bad, CATALOG_COLUMNS)}, which is not a catalog "
                            f"column; known: {', '.join(CATALOG_COLUMNS)}")
+    taken: dict = {}
+    for ours, theirs in mapping.items():
+        if theirs in taken:
+            raise CatalogError(f"column {theirs!r} is mapped to both {taken[theirs]} and {ours} in [columns]; "
+                               "each observable needs its own column")
+        taken[theirs] = ours
     available = list(table.colnames)
     lower = {}
     for name in available:
@@ -431,6 +474,12 @@ def read_catalog(path, columns: dict | None = None) -> Catalog:
         values[err_name] = _as_floats(ecol, n, err_name, bad) * fe
         units[value_name], units[err_name] = unit_name(vunit), unit_name(eunit)
 
+    counts = table.meta.get("radwalk_fields")
+    if counts:
+        width, per_row = counts
+        for i, got in enumerate(per_row):
+            if got < width:  # astropy fills a short row with empty cells: they would read as "not measured"
+                bad.setdefault(i, f"the row has {got} of {width} fields (a truncated line?)")
     derived = _flags(table, n, bad, notices)
     nan = np.full(n, np.nan)
     entries, observed = [], []

@@ -28,6 +28,7 @@ import shutil
 import signal
 import sys
 import tempfile
+import time
 from pathlib import Path
 
 from radwalk.errors import ConfigError, PluginError, RadwalkError
@@ -35,6 +36,10 @@ from radwalk.host.config import RunConfig
 from radwalk.run.state import file_sha
 
 DASK_CONNECT_TIMEOUT_S = 5
+# A run stops when the scheduler has had no worker for this long: a nanny restarts a killed worker in
+# seconds and a batch system may take a minute to replace one; longer means every worker is gone.
+NO_WORKERS_GRACE_S = 120.0
+_POLL_S = 1.0  # how often a waiting run asks the scheduler how many workers it has
 
 
 def _upload_name(sha: str) -> str:
@@ -100,8 +105,11 @@ def _die_with_parent():
 
 
 def _pool_init():
-    # The parent handles Ctrl-C and stops the pool; workers must not each print a traceback.
+    # The parent handles Ctrl-C and SIGTERM (sent to the whole process group by a terminal or a batch
+    # scheduler) and stops the pool; workers must not each print a traceback, nor die first and make the
+    # run report a dead worker instead of the interruption.
     signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.signal(signal.SIGTERM, signal.SIG_IGN)
     os.environ.setdefault("MPLBACKEND", "Agg")
     _die_with_parent()
 
@@ -143,7 +151,7 @@ class _LocalExecutor:
             self.pool.shutdown(wait=False, cancel_futures=True)
             for p in procs:  # stop the stars in flight now: they are recomputed on resume
                 if p.is_alive():
-                    p.terminate()
+                    p.kill()  # SIGKILL: the workers ignore SIGTERM (see _pool_init)
         else:
             self.pool.shutdown(wait=True)
 
@@ -194,13 +202,40 @@ class _DaskExecutor:
         return self.client.submit(_star_task, *args, pure=False)
 
     def wait(self, pending):
+        """(done, rest) once a star finishes; RadwalkError when the scheduler has had no worker for a while.
+
+        Without that check a run whose every worker died (or was stopped) would wait forever: the
+        scheduler keeps the stars queued for workers that never come.
+        """
+        import asyncio
+
         from distributed import wait
 
-        done, rest = wait(list(pending), return_when="FIRST_COMPLETED")
-        return set(done), set(rest)
+        alone_since = None
+        while True:
+            try:
+                done, rest = wait(list(pending), timeout=_POLL_S, return_when="FIRST_COMPLETED")
+                return set(done), set(rest)
+            except (TimeoutError, asyncio.TimeoutError):
+                pass
+            if self.client.nthreads():
+                alone_since = None
+                continue
+            now = time.monotonic()
+            alone_since = alone_since or now
+            if now - alone_since >= NO_WORKERS_GRACE_S:
+                raise RadwalkError(f"no Dask worker has been connected to the scheduler for "
+                                   f"{NO_WORKERS_GRACE_S:g} s, so no star can run; the stars already done stay "
+                                   "done: start workers and run the same command again to resume")
 
     def result(self, fut):
-        return fut.result()
+        from distributed import KilledWorker
+
+        try:
+            return fut.result()
+        except KilledWorker as exc:
+            raise RadwalkError(f"a star's Dask worker died every time it was tried ({exc}); run the same "
+                               "command again to resume") from None
 
     def close(self, cancel: bool = False):
         try:

@@ -20,21 +20,32 @@ from __future__ import annotations
 import logging
 import math
 import os
+import signal
 import sys
 import time
 import warnings
+from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
 from radwalk import __version__
-from radwalk.errors import CatalogError, ConfigError, RadwalkError, ValidityWarning
+from radwalk.errors import (
+    CatalogError,
+    ConfigError,
+    EnvironmentProblem,
+    RadwalkError,
+    ValidityWarning,
+    environment_cause,
+)
 from radwalk.host.config import RunConfig, to_toml
 from radwalk.results.document import document, result_document
-from radwalk.results.files import write_json, write_table, write_text
+from radwalk.results.files import remove_leftovers, write_json, write_table, write_text
 from radwalk.results.layout import (
     LOG_FILE,
+    REPORT_DIR,
     RUN_TOML,
     STAR_SUMMARY,
+    STARS_DIR,
     STATE_FILE,
     SUMMARY_ECSV,
     SUMMARY_FITS,
@@ -43,6 +54,7 @@ from radwalk.results.layout import (
 )
 from radwalk.run.catalog import Catalog, CatalogEntry, read_catalog
 from radwalk.run.executors import make_executor
+from radwalk.run.lock import folder_lock
 from radwalk.run.state import check_state, load_done, new_state, now, plugin_hashes, prepare_output, summary_docs
 
 PROVENANCE_PACKAGES = ("numpy", "scipy", "emcee", "astropy", "h5py", "matplotlib", "dask", "distributed")
@@ -214,19 +226,69 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
             raise CatalogError(f"star ids {folders[name.lower()]!r} and {e.id!r} map to the same folder {name!r}")
         folders[name.lower()] = e.id
 
-    out = prepare_output(out_dir, force)
+    # A named scheduler is asked first: one that does not answer leaves no output folder behind.
+    ex = make_executor(executor, workers, scheduler, config, hashes) if scheduler else None
+    try:
+        out = prepare_output(out_dir, force)
+        with folder_lock(out), _sigterm_interrupts():
+            return _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet,
+                               plots, t0, started, ex)
+    except BaseException:
+        if ex is not None:
+            ex.close(cancel=True)
+        raise
+
+
+class Terminated(KeyboardInterrupt):
+    """SIGTERM (what batch schedulers send) stopped the run; handled like Ctrl-C."""
+
+
+@contextmanager
+def _sigterm_interrupts():
+    """SIGTERM raises :class:`Terminated` in the run (main thread only) so it stops as Ctrl-C does."""
+    import threading
+
+    if threading.current_thread() is not threading.main_thread():
+        yield
+        return
+
+    def handler(signum, frame):
+        raise Terminated()
+
+    previous = signal.signal(signal.SIGTERM, handler)
+    try:
+        yield
+    finally:
+        signal.signal(signal.SIGTERM, previous)
+
+
+def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet, plots, t0, started,
+                ex=None):
+    """run_catalog's work once it holds the output folder's lock (``ex``: an executor already connected)."""
+    # a killed run's half-written files: nothing else writes here while the lock is held
+    for folder in (out, out / REPORT_DIR, *(p for p in (out / STARS_DIR).iterdir() if p.is_dir())):
+        remove_leftovers(folder)
     state = new_state(catalog, config, hashes)
     old = check_state(out, state, force)
     if old and not force:
         state["first_started"] = old.get("first_started", state["first_started"])
     components = check_config(config)
+    outcome_notes = list(catalog.notices)
     todo = [e for e in catalog if e.star is not None
-            and (force or load_done(star_folder(out, e.id), e.id, config.seed) is None)]
+            and (force or load_done(star_folder(out, e.id), e.star, config) is None)]
+    if not scheduler:  # processes this machine starts: no more than its cores, nor than stars to compute
+        workers, note = capped_workers(workers, len(todo))
+        if note:
+            outcome_notes.append(note)
     # The executor starts before any file is written, so an unanswering scheduler changes nothing.
-    ex = make_executor(executor, workers, scheduler, config, hashes if executor == "dask" else {}) if todo else None
+    if ex is None and todo:
+        ex = make_executor(executor, workers, scheduler, config, hashes if executor == "dask" else {})
+    elif ex is not None and not todo:
+        ex.close()
+        ex = None
     cancel = True
     outcome = RunOutcome(out, out / SUMMARY_ECSV, out / SUMMARY_FITS, out / RUN_TOML,
-                         stars=len(catalog), notices=list(catalog.notices))
+                         stars=len(catalog), notices=outcome_notes)
     handler = None
     try:
         if force:  # every star is recomputed: a killed forced run must not resume from old results
@@ -237,7 +299,7 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
         LOG.info("run of %s (%d stars, sha256 %s) into %s; executor %s, %d worker(s), seed %d%s",
                  catalog.path, len(catalog), catalog.fingerprint[:12], out, executor, workers, config.seed,
                  ", forced" if force else "")
-        for note in catalog.notices:
+        for note in outcome_notes:
             LOG.info("notice: %s", note)
         waiting = {e.row for e in todo}
         for e in catalog:
@@ -250,13 +312,23 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
                 _log_star(doc)
             elif e.row not in waiting:
                 outcome.resumed += 1
-                _count(outcome, load_done(star_folder(out, e.id), e.id, config.seed)["status"])
+                _count(outcome, load_done(star_folder(out, e.id), e.star, config)["status"])
         if todo:
             _compute(ex, todo, out, config, hashes if executor == "dask" else None, plots, quiet, outcome)
         cancel = False
-    except KeyboardInterrupt:
+    except KeyboardInterrupt as exc:
         if handler is not None:
-            LOG.warning("interrupted; run the same command again to resume")
+            how = " (SIGTERM)" if isinstance(exc, Terminated) else ""
+            LOG.warning("interrupted%s; run the same command again to resume", how)
+        raise
+    except (EnvironmentProblem, OSError, MemoryError) as exc:
+        problem = _environment_stop(exc, handler is not None)
+        if problem is None:
+            raise
+        raise problem from None
+    except RadwalkError as exc:  # the executor stopped the run (no Dask worker left, say): in the log too
+        if handler is not None:
+            LOG.error("stopped: %s", exc)
         raise
     finally:
         if ex is not None:
@@ -282,10 +354,43 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
         LOG.info("finished: %s; summary %s (%d rows)", outcome.line(), outcome.summary_ecsv.name, len(table))
         if report:
             _report(out, outcome)
+    except (OSError, MemoryError) as exc:
+        problem = _environment_stop(exc, True)
+        if problem is None:
+            raise
+        raise problem from None
     finally:
         LOG.removeHandler(handler)
         handler.close()
     return outcome
+
+
+def _environment_stop(exc: BaseException, logged: bool) -> EnvironmentProblem | None:
+    """The one-line error that stops a run the machine failed (no space, I/O, memory), logged; None otherwise.
+
+    The stars it stopped were not marked done, so the same command resumes them.
+    """
+    cause = environment_cause(exc)
+    if cause is None:
+        return None
+    message = (f"stopped: {cause}; no star was marked done because of it: fix the cause (free space, ...) and "
+               "run the same command again to resume")
+    if logged:
+        LOG.error(message)
+    return EnvironmentProblem(message)
+
+
+def capped_workers(requested: int, stars: int) -> tuple[int, str]:
+    """Worker processes to start on this machine, and a notice when the request was cut to its cores.
+
+    More processes than cores only share them (each star's fit is one CPU-bound process), and more
+    than stars to compute sit idle; ``--workers 1000`` once started one process per star.
+    """
+    cores = os.cpu_count() or 1
+    n = max(1, min(int(requested), cores, max(1, int(stars))))
+    note = (f"--workers {requested} is more than this machine's {cores} cores; {min(int(requested), cores)} "
+            "started") if requested > cores else ""
+    return n, note
 
 
 def _count(outcome: RunOutcome, status: str):
@@ -317,7 +422,7 @@ def _compute(ex, todo, out, config, hashes, plots, quiet, outcome):
                 e = pending.pop(fut)
                 result = ex.result(fut)
                 folder = star_folder(out, e.id)
-                doc = load_done(folder, e.id, config.seed)
+                doc = load_done(folder, e.star, config)
                 if doc is None:  # a worker without the shared folder: keep what it returned
                     doc = result_document(e.star, config, result)
                     write_json(folder / STAR_SUMMARY, doc)

@@ -1,8 +1,9 @@
 """Run state and resume: fingerprints of the catalog, config and plugins (state.json), the output folder's
 checks, and which stars an earlier run finished.
 
-Running the same command again skips every star whose summary.json is there
-(and names the same star and seed) and computes the rest.  A catalog, config,
+Running the same command again skips every star whose summary.json is there,
+whole, and fingerprinted with the same star values and config (:func:`load_done`),
+and computes the rest.  A catalog, config,
 plugin file or radwalk version that changed since the first run is refused
 unless ``force``.
 """
@@ -12,6 +13,7 @@ from __future__ import annotations
 import hashlib
 import json
 import os
+import socket
 import tempfile
 from datetime import datetime, timezone
 from functools import lru_cache
@@ -20,9 +22,9 @@ from pathlib import Path
 from radwalk import __version__
 from radwalk.errors import ConfigError, PluginError
 from radwalk.host.config import RunConfig
-from radwalk.results.document import STATUSES, read_document
+from radwalk.results.document import STATUSES, read_document, star_fingerprint
 from radwalk.results.files import strict
-from radwalk.results.layout import RUN_FILES, STAR_SUMMARY, STARS_DIR, STATE_FILE, star_folder
+from radwalk.results.layout import RUN_FILES, STAR_SUMMARY, STARS_DIR, STATE_FILE, chain_file_name, star_folder
 from radwalk.run.catalog import Catalog
 
 
@@ -131,6 +133,8 @@ def new_state(catalog: Catalog, config: RunConfig, plugins: dict) -> dict:
         "plugins": plugins,
         "first_started": now(),
         "finished": None,
+        # who holds the folder now (radwalk.run.lock quotes it to a second run)
+        "run_by": {"pid": os.getpid(), "host": socket.gethostname(), "started": now()},
     }
 
 
@@ -175,14 +179,45 @@ def check_state(out: Path, state: dict, force: bool) -> dict | None:
     return old
 
 
-def load_done(folder: Path, star_id: str, seed: int) -> dict | None:
-    """The star's summary.json if it is complete and belongs to this star and seed, else None."""
+def load_done(folder: Path, star, config: RunConfig) -> dict | None:
+    """The star's summary.json if a resumed run may reuse it, else None (the star is computed again).
+
+    Reused only when it is whole and this star's under this config: the id and
+    seed match, its ``fingerprint`` equals :func:`radwalk.results.document.star_fingerprint`
+    of the star and config (catalog values, config, stages, plugins, version), a
+    fitted star's document holds its fit (parameters with medians, derived
+    quantities, sampler steps), and each of its chain files opens and holds those steps.
+    """
     doc = read_document(folder / STAR_SUMMARY)
-    if doc is None or doc.get("id") != star_id or doc.get("status") not in STATUSES:
+    if doc is None or doc.get("id") != star.id or doc.get("status") not in STATUSES:
         return None
-    if doc.get("seed") != seed:
+    if doc.get("seed") != config.seed or doc.get("fingerprint") != star_fingerprint(star, config):
+        return None
+    if doc["status"] != "failed" and not _fit_is_whole(folder, doc, config):
         return None
     return doc
+
+
+def _fit_is_whole(folder: Path, doc: dict, config: RunConfig) -> bool:
+    params, derived, sampler = doc.get("parameters"), doc.get("derived"), doc.get("sampler")
+    if not (isinstance(params, dict) and params and isinstance(derived, dict) and derived
+            and isinstance(sampler, dict)):
+        return False
+    if not all(isinstance(p, dict) and isinstance(p.get("p50"), (int, float)) for p in params.values()):
+        return False
+    steps = sampler.get("steps")
+    if not isinstance(steps, int) or steps < 1:
+        return False
+    try:
+        import h5py
+
+        for j, op in enumerate(config.opacity_names()):
+            with h5py.File(folder / chain_file_name(op, primary=j == 0), "r") as f:
+                if f["chain"].shape[0] != steps or f["log_prob"].shape[0] != steps:
+                    return False
+    except (OSError, KeyError, ValueError):
+        return False
+    return True
 
 
 def summary_docs(out: Path, entries):

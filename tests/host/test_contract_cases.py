@@ -196,10 +196,10 @@ def test_in_a_plugin_authors_own_test_suite(pytester, tmp_path):
             case.run()
     """))
     result = pytester.runpytest("-p", "no:cacheprovider", "-rf")
-    # 11 checks per law: declarations, params, validity and the 8 of the opacity stage
-    result.assert_outcomes(passed=21, failed=1)
+    # 12 checks per law: declarations, params, validity and the 9 of the opacity stage
+    result.assert_outcomes(passed=23, failed=1)
     result.stdout.fnmatch_lines(["*ContractFailure: opacity component 'bad-law' * fails the 'finite' check: *",
                                  "FAILED test_author.py::test_contract[[]opacity:bad-law:finite[]]*"])
     # -k picks a check by name
     result = pytester.runpytest("-p", "no:cacheprovider", "-k", "smoothness")
-    result.assert_outcomes(passed=2, deselected=20)
+    result.assert_outcomes(passed=2, deselected=22)

@@ -122,11 +122,20 @@ def test_report_builds_from_documents_with_nulls(run_dir):
     assert "Infinity" not in page and "NaN" not in page and "None" not in page
 
 
-def test_resume_reads_a_document_with_nulls(run_dir):
-    out, _ = run_dir
-    doc = load_done(star_folder(out, "sun"), "sun", 7)
+def test_resume_reads_a_document_with_nulls(tmp_path):
+    from radwalk.host.config import RunConfig
+    from radwalk.inference.star import Star
+    from radwalk.results.chain import ChainFile
+    from radwalk.results.document import star_fingerprint
+
+    star = Star.from_user_units("sun", 1.0, 0.02, 1.1, 0.05, feh=0.1, feh_err=0.05)
+    config = RunConfig(seed=7)
+    folder = star_folder(tmp_path, "sun")
+    ChainFile(folder / "chain.h5", ["mass"], 8).append(np.ones((400, 8, 1)), np.zeros((400, 8)))
+    write_json(folder / STAR_SUMMARY, {**fitted_doc("sun"), "fingerprint": star_fingerprint(star, config)})
+    doc = load_done(folder, star, config)
     assert doc is not None and doc["status"] == "ok" and doc["ppc_pvalue"] is None
-    assert load_done(star_folder(out, "sun"), "sun", 8) is None  # another seed: not this run's
+    assert load_done(folder, star, RunConfig(seed=8)) is None  # another seed: not this run's
 
 
 def test_a_config_value_written_as_null_is_no_difference():

@@ -13,7 +13,7 @@ from radwalk import constants as k
 from radwalk.host.components import Observations
 from radwalk.host.contracts.inputs import default_params
 from radwalk.host.contracts.outcome import CheckRow
-from radwalk.host.contracts.subject import Check, Subject, broadcasting_row, loop_mismatch, warnings_row
+from radwalk.host.contracts.subject import Check, Subject, broadcasting_row, inputs_row, loop_mismatch, warnings_row
 
 STAGE = "likelihood"
 # The Sun with errors of the size a good measurement of another star has: 1 % in R, 2 % in L, 50 K
@@ -124,10 +124,20 @@ def check_likelihood_warnings(subject) -> CheckRow | None:
 
 
 # in report order
+def check_likelihood_inputs(subject) -> CheckRow | None:
+    """``loglike`` leaves the predictions and the parameters as it was given them (no writes into its inputs)."""
+    s = Subject.of(subject)
+    if s.component is None:
+        return None
+    return inputs_row(s, _call, _predictions(s), _Predictions(s.component),
+                      {"predicted": "predicted", "params": "params"})
+
+
 CHECKS = (
     Check("call", check_likelihood_call),
     Check("shape", check_likelihood_shape),
     Check("values", check_likelihood_values),
     Check("broadcasting", check_likelihood_broadcasting),
     Check("warnings", check_likelihood_warnings),
+    Check("inputs", check_likelihood_inputs),
 )

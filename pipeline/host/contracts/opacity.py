@@ -15,7 +15,7 @@ import numpy as np
 
 from radwalk.host.contracts.inputs import checked_range, compositions, default_params, fmt_point
 from radwalk.host.contracts.outcome import CheckRow
-from radwalk.host.contracts.subject import Check, Subject, time_per_million, warnings_row
+from radwalk.host.contracts.subject import Check, Subject, inputs_row, time_per_million, warnings_row
 
 STAGE = "opacity"
 
@@ -255,6 +255,15 @@ def check_opacity_speed(subject) -> CheckRow | None:
                     f"{per_million:.3g} s per million points (limit {SLOW_LIMIT:g} s)")
 
 
+def check_opacity_inputs(subject) -> CheckRow | None:
+    """``kappa`` leaves rho, T, X, Z and the parameters as it was given them (no writes into its inputs)."""
+    s = Subject.of(subject)
+    if s.component is None:
+        return None
+    return inputs_row(s, _call, _grid(s), _Grid(s.component, s.grid_points),
+                      {"rho": "R", "T": "T", "X": "X", "Z": "Z", "params": "params"})
+
+
 # in report order
 CHECKS = (
     Check("call", check_opacity_call),
@@ -265,4 +274,5 @@ CHECKS = (
     Check("warnings", check_opacity_warnings),
     Check("smoothness", check_opacity_smoothness),
     Check("speed", check_opacity_speed),
+    Check("inputs", check_opacity_inputs),
 )

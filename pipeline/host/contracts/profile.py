@@ -16,7 +16,7 @@ from radwalk import constants as k
 from radwalk.host.components import Profile
 from radwalk.host.contracts.inputs import compositions, default_opacity, default_params, fmt_point, masses
 from radwalk.host.contracts.outcome import CheckRow
-from radwalk.host.contracts.subject import Check, Subject, broadcasting_row, loop_mismatch, warnings_row
+from radwalk.host.contracts.subject import Check, Subject, broadcasting_row, inputs_row, loop_mismatch, warnings_row
 from radwalk.host.contracts.support import declares_support, support_row
 
 STAGE = "profile"
@@ -187,6 +187,15 @@ def check_profile_support(subject) -> CheckRow | None:
 
 
 # in report order
+def check_profile_inputs(subject) -> CheckRow | None:
+    """``profile`` leaves M, R, X, Z and the parameters as it was given them (no writes into its inputs)."""
+    s = Subject.of(subject)
+    if s.component is None:
+        return None
+    return inputs_row(s, _call, _stars(s), _Stars(s.component, lambda: s.registry),
+                      {"M": "M", "R": "R", "X": "X", "Z": "Z", "params": "params"})
+
+
 CHECKS = (
     Check("call", check_profile_call),
     Check("shape", check_profile_shape),
@@ -195,4 +204,5 @@ CHECKS = (
     Check("broadcasting", check_profile_broadcasting),
     Check("warnings", check_profile_warnings),
     Check("support", check_profile_support, applies=declares_support),
+    Check("inputs", check_profile_inputs),
 )

@@ -11,7 +11,7 @@ import numpy as np
 from radwalk import constants as k
 from radwalk.host.contracts.inputs import compositions, default_opacity, default_params, fmt_point, masses
 from radwalk.host.contracts.outcome import CheckRow
-from radwalk.host.contracts.subject import Check, Subject, broadcasting_row, loop_mismatch, warnings_row
+from radwalk.host.contracts.subject import Check, Subject, broadcasting_row, inputs_row, loop_mismatch, warnings_row
 from radwalk.host.contracts.support import declares_support, support_row
 
 STAGE = "relation"
@@ -145,6 +145,15 @@ def check_relation_support(subject) -> CheckRow | None:
 
 
 # in report order
+def check_relation_inputs(subject) -> CheckRow | None:
+    """``predict`` leaves M, X, Z and the parameters as it was given them (no writes into its inputs)."""
+    s = Subject.of(subject)
+    if s.component is None:
+        return None
+    return inputs_row(s, _call, _stars(s), _Stars(s.component, s.registry),
+                      {"M": "M", "X": "X", "Z": "Z", "params": "params"})
+
+
 CHECKS = (
     Check("call", check_relation_call),
     Check("shape", check_relation_shape),
@@ -152,4 +161,5 @@ CHECKS = (
     Check("broadcasting", check_relation_broadcasting),
     Check("warnings", check_relation_warnings),
     Check("support", check_relation_support, applies=declares_support),
+    Check("inputs", check_relation_inputs),
 )

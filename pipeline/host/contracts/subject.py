@@ -201,3 +201,25 @@ def loop_mismatch(subject: Subject, fn, n: int, args_of, outputs_of, label, full
 def broadcasting_row(mismatch: str | None, n: int) -> CheckRow:
     """The ``broadcasting`` row of a stage whose n-sample call is compared with n one-sample calls."""
     return CheckRow("broadcasting", mismatch is None, mismatch or f"{n} one-sample calls equal the {n}-sample call")
+
+
+def inputs_row(s: Subject, call, used, fresh, names: dict) -> CheckRow | None:
+    """The ``inputs`` row: the component's calls left their input arrays as they were given.
+
+    ``used`` is the inputs object the stage's calls received, ``fresh`` the same
+    inputs built anew; ``names`` maps each input's name in the report to its
+    attribute (a dict attribute is compared key by key, named ``attr[key]``).
+    A fit passes components read-only arrays, so a law that writes into its
+    inputs fails there; this names the input it wrote into.
+    """
+    if s.component is None or not call(s)[0]:
+        return None
+    for label, attr in names.items():
+        a, b = getattr(used, attr), getattr(fresh, attr)
+        pairs = [(f"{label}[{key!r}]", a[key], b[key]) for key in a] if isinstance(a, dict) else [(label, a, b)]
+        for name, x, y in pairs:
+            x, y = np.asarray(x), np.asarray(y)
+            if x.shape != y.shape or not np.array_equal(x, y, equal_nan=True):
+                return CheckRow("inputs", False, f"the component changed its input {name} in place; inputs are "
+                                                 "read-only in a fit: copy an array before changing it")
+    return CheckRow("inputs", True, f"{', '.join(names)} left as given")
