@@ -243,7 +243,7 @@ def test_restricted_spec_keeps_the_stencil_nodes():
     cut = spec.restricted((1.02, 1.28), (0.012, 0.02))
     m, z = spec.masses(), spec.metallicities()
     # every node of the range plus two beyond each end, as the 4-point stencil needs
-    assert cut.masses().tolist() == m[(m >= 0.9) & (m <= 1.5)].tolist()
+    assert cut.masses().tolist() == m[(m >= 0.9) & (m <= 1.4)].tolist()
     assert cut.metallicities().tolist() == z[(z >= 0.0046) & (z <= 0.04)].tolist()
     assert cut.alpha_mlt == spec.alpha_mlt and cut.n_phase == spec.n_phase
     with pytest.raises(ConfigError, match="outside the grid"):
@@ -271,7 +271,7 @@ def test_grid_build_for_a_catalog_prints_the_cut(tmp_path, capsys):
                    "a,1.0,0.02,1.0,0.05,5770,60,0.0,0.05\nb,1.3,0.03,2.5,0.1,6300,70,0.05,0.05\n")
     assert main(["grid", "build", "--for-catalog", str(cat), "--opacity", "kramers", "--dry-run"]) == 0
     out = capsys.readouterr().out
-    assert "2 stars need 19 of 30 masses (0.6-2.2 M_sun)" in out, out
+    assert "2 stars need 24 of 39 masses (0.6-2 M_sun)" in out, out
 
 
 def test_shipped_grid_is_found_before_building(tiny, tmp_path, monkeypatch):
