@@ -19,7 +19,15 @@ import time
 import numpy as np
 
 from radwalk import constants as const
-from radwalk.forward.model_grid import GridSpec, build_grid, cached_grid, catalog_ranges, leave_one_out, track_opacity
+from radwalk.forward.model_grid import (
+    GridSpec,
+    build_grid,
+    cached_grid,
+    catalog_ranges,
+    estimate_cpu_seconds,
+    leave_one_out,
+    track_opacity,
+)
 from radwalk.host.config import RunConfig
 from radwalk.inference.fit import stages_for
 from radwalk.run.catalog import read_catalog
@@ -37,6 +45,9 @@ def custom_build(law: str, catalog: str, workers: int) -> dict:
     L = [s.user_values()["luminosity"][0] for s in stars]
     feh = [s.feh if s.feh is not None else (np.nan, np.nan) for s in stars]
     spec = GridSpec().restricted(*catalog_ranges(L, feh))
+    estimate = estimate_cpu_seconds(spec)
+    print(f"custom law {law!r}: {spec.n_mass} x {spec.n_z} tracks, estimated before building {estimate:.0f} s CPU "
+          f"(~{estimate / min(workers, spec.n_mass * spec.n_z):.0f} s wall on {workers} workers)", flush=True)
     cpu0 = sum(os.times()[:4])
     t0 = time.perf_counter()
     grid = build_grid(kappa, spec, workers=workers)
@@ -45,7 +56,8 @@ def custom_build(law: str, catalog: str, workers: int) -> dict:
     print(f"custom law {law!r} for {len(stars)} stars of {catalog}: {spec.n_mass} x {spec.n_z} tracks "
           f"({spec.mass_range[0]:g}-{spec.mass_range[1]:g} M_sun), {cpu:.0f} s CPU, {wall:.0f} s wall on {workers} "
           f"workers; failed {len(grid.header['build']['failed'])}")
-    return {"law": law, "tracks": spec.n_mass * spec.n_z, "cpu_seconds": cpu, "wall_seconds": wall}
+    return {"law": law, "tracks": spec.n_mass * spec.n_z, "estimated_cpu_seconds": estimate, "cpu_seconds": cpu,
+            "wall_seconds": wall}
 
 
 def main():

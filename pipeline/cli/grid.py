@@ -13,7 +13,7 @@ def add_grid_parser(sub, common):
     b = gs.add_parser("build", parents=[common], help="compute a grid of tracks (cached; reused when it exists)")
     b.add_argument("--mass-range", type=finite_float, nargs=2, metavar=("LOW", "HIGH"), default=None,
                    help="smallest and largest mass, M_sun, with --masses equally spaced in log M "
-                        "(default: the default grid's 30 masses over 0.6-8, closer over 0.9-1.3)")
+                        "(default: the default grid's 39 masses over 0.6-8, closer over 0.9-2.8)")
     b.add_argument("--masses", type=int_at_least(1), default=None, help="masses over --mass-range (default 20)")
     b.add_argument("--z-range", type=finite_float, nargs=2, metavar=("LOW", "HIGH"), default=None,
                    help="smallest and largest metal fraction Z, with --metallicities equally spaced in log Z "
