@@ -12,26 +12,14 @@ import threading
 import time
 
 import pytest
+from quick_run import quick_run_toml
 
 from radwalk.errors import RadwalkError
 from radwalk.results.layout import star_folder
 from radwalk.run import executors
 from radwalk.run.orchestrate import load_run_config, run_catalog
 
-FAST_TOML = """\
-[stages]
-profile = "polytrope"
-opacity = "combined"
-relation = "homology"
-likelihood = "gaussian"
-
-[sampler]
-walkers = 16
-chunk = 100
-max_steps = 200
-derived_samples = 60
-optimizer_starts = 1
-"""
+FAST_TOML = quick_run_toml()
 
 
 @pytest.mark.dask

@@ -9,26 +9,14 @@ import time
 from pathlib import Path
 
 import pytest
+from quick_run import quick_run_toml
 
 from radwalk.errors import RadwalkError
 from radwalk.run.lock import folder_lock
 from radwalk.run.orchestrate import load_run_config, run_catalog
 
 ROOT = Path(__file__).resolve().parents[2]
-FAST_TOML = """\
-[stages]
-profile = "polytrope"
-opacity = "combined"
-relation = "homology"
-likelihood = "gaussian"
-
-[sampler]
-walkers = 16
-chunk = 100
-max_steps = 2000
-derived_samples = 60
-optimizer_starts = 1
-"""
+FAST_TOML = quick_run_toml(max_steps=2000)
 
 
 @pytest.mark.subprocess

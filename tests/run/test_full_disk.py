@@ -17,6 +17,7 @@ from pathlib import Path
 import numpy as np
 import pytest
 from astropy.table import Table
+from quick_run import quick_run_toml
 
 from radwalk.errors import EnvironmentProblem, environment_cause
 from radwalk.inference.fit import fit_star
@@ -25,23 +26,7 @@ from radwalk.results import files
 from radwalk.run.orchestrate import load_run_config, run_catalog
 
 ROOT = Path(__file__).resolve().parents[2]
-FAST_TOML = """\
-[stages]
-profile = "polytrope"
-opacity = "combined"
-relation = "homology"
-likelihood = "gaussian"
-
-[sampler]
-walkers = 16
-chunk = 100
-max_steps = 200
-derived_samples = 60
-optimizer_starts = 1
-
-[run]
-seed = 5
-"""
+FAST_TOML = quick_run_toml(seed=5)
 CATALOG = "id,radius,radius_err,luminosity,luminosity_err,teff,teff_err\n" \
           "sun like,1.0,0.04,1.0,0.05,5772,100\nwarmer,1.3,0.06,2.5,0.15,6500,120\n"
 

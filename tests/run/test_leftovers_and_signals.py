@@ -10,26 +10,14 @@ import time
 from pathlib import Path
 
 import pytest
+from quick_run import quick_run_toml
 
 from radwalk.errors import ConfigError
 from radwalk.results.layout import star_folder
 from radwalk.run.orchestrate import load_run_config, run_catalog
 
 ROOT = Path(__file__).resolve().parents[2]
-FAST_TOML = """\
-[stages]
-profile = "polytrope"
-opacity = "combined"
-relation = "homology"
-likelihood = "gaussian"
-
-[sampler]
-walkers = 16
-chunk = 100
-max_steps = 200
-derived_samples = 60
-optimizer_starts = 1
-"""
+FAST_TOML = quick_run_toml()
 CATALOG = "id,radius,radius_err,luminosity,luminosity_err,teff,teff_err\na,1.0,0.04,1.0,0.05,5772,100\n"
 
 

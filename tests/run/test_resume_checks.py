@@ -7,6 +7,7 @@ import shutil
 import h5py
 import numpy as np
 import pytest
+from quick_run import quick_run_toml
 
 from radwalk.host.config import RunConfig, SamplerConfig
 from radwalk.inference.fit import StarResult
@@ -18,23 +19,7 @@ from radwalk.results.layout import STATE_FILE, star_folder
 from radwalk.run.orchestrate import load_run_config, run_catalog
 from radwalk.run.state import load_done
 
-FAST_TOML = """\
-[stages]
-profile = "polytrope"
-opacity = "combined"
-relation = "homology"
-likelihood = "gaussian"
-
-[sampler]
-walkers = 16
-chunk = 100
-max_steps = 200
-derived_samples = 60
-optimizer_starts = 1
-
-[run]
-seed = 3
-"""
+FAST_TOML = quick_run_toml(seed=3)
 CATALOG = "id,radius,radius_err,luminosity,luminosity_err,teff,teff_err\n" \
           "a,1.0,0.04,1.0,0.05,5772,100\nb,1.3,0.06,2.5,0.15,6500,120\n"
 
