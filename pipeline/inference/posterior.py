@@ -2,7 +2,10 @@
 
 ``Posterior(theta[nwalkers, ndim]) -> [nwalkers]`` is vectorised over walkers
 (emcee's ``vectorize=True``), returns ``-inf`` outside the prior support or
-where the relation finds no star, and never NaN.  The support is that of each
+where the relation finds no star, and never NaN.  With the built-in
+track-grid stages a call runs one compiled loop (:mod:`radwalk.inference.fused`,
+equal to :meth:`Posterior.general` to rounding); any other combination of
+components takes the general path, stage by stage.  The support is that of each
 parameter's prior together with the joint supports the components declare
 (:meth:`radwalk.forward.stages.StageSet.support`: an age no greater than the
 main-sequence lifetime of the mass, say); prior draws are kept inside it.
@@ -106,6 +109,7 @@ class Posterior:
         self._has_support = bool(stages.support_stages())
         self._has_density = bool(stages.prior_density_stages())
         self._widths = None  # prior_widths(), drawn once
+        self._fused = None  # the compiled path of radwalk.inference.fused, built on first call (False: none)
 
     # -- parameter vectors ----------------------------------------------
     def values(self, theta) -> dict:
@@ -187,6 +191,23 @@ class Posterior:
         return np.where(physical, ll, -np.inf)
 
     def __call__(self, theta):
+        """Log-posterior [n] of ``theta`` [n, ndim]: the fused path when the stages allow it, else the general."""
+        fused = self._fused if self._fused is not None else self._build_fused()
+        return fused(theta) if fused else self.general(theta)
+
+    def _build_fused(self):
+        from radwalk.inference.fused import fused_log_prob
+
+        self._fused = fused_log_prob(self) or False
+        return self._fused
+
+    @property
+    def fused(self) -> bool:
+        """Whether calls take the compiled path of :mod:`radwalk.inference.fused` (built if not yet)."""
+        return bool(self._fused if self._fused is not None else self._build_fused())
+
+    def general(self, theta):
+        """Log-posterior [n] through each stage's own methods (what the fused path must equal)."""
         theta = np.atleast_2d(theta)
         out = np.full(theta.shape[0], -np.inf)
         with np.errstate(all="ignore"):
