@@ -18,10 +18,11 @@ njit = numba.njit(cache=True, nogil=True, error_model="numpy")
 
 # Slots of the packed settings (``ints`` and ``floats`` of log_posterior): one array each instead of thirty
 # scalar arguments, because numba's dispatcher unboxes every argument on every call.
-I_COL, I_CHECK_XZ, I_FIXED_X, I_FEH, I_MS, I_ZS, I_NZ, I_NPHASE, I_PRESENT = 0, 3, 4, 5, 6, 7, 8, 9, 10
+I_COL, I_CHECK_XZ, I_FIXED_X, I_FEH, I_MS, I_ZS, I_NZ, I_NPHASE = 0, 3, 4, 5, 6, 7, 8, 9
+I_PRESENT, I_PRIOR_ONLY = 10, 13
 F_FIXED, F_X, F_YP, F_DYDZ, F_FEH_MEAN, F_FEH_SIGMA, F_SOLAR_ZX, F_MTOL, F_ZTOL = 0, 3, 4, 5, 6, 7, 8, 9, 10
 F_AGE_CAP, F_GYR, F_OBS, F_SIG, F_LOG_SIG, F_FOUR_PI_SIGMA = 11, 12, 13, 16, 19, 20
-N_INTS, N_FLOATS = 13, 21
+N_INTS, N_FLOATS = 14, 21
 
 
 @njit
@@ -74,6 +75,8 @@ def locate(nodes, inv_den, s, tol, x, w):
 @njit
 def log_posterior(theta, out, ints, floats, kinds, rows, m_nodes, m_inv, z_nodes, z_inv, log_life, log_r, log_l):
     """Log-posterior of each walker into ``out`` [n] (-inf outside the support; never NaN).
+
+    With ``ints[I_PRIOR_ONLY]`` set, the log prior alone (declared priors, [Fe/H], support, age-prior term).
 
     Parameters
     ----------
@@ -132,6 +135,9 @@ def log_posterior(theta, out, ints, floats, kinds, rows, m_nodes, m_inv, z_nodes
         if not (life_gyr == life_gyr) or not (age >= 0.0 and age <= min(life_gyr, age_cap)):
             continue
         lp -= math.log(min(life_gyr, age_cap) / age_cap)
+        if ints[I_PRIOR_ONLY]:
+            out[i] = lp
+            continue
         # R and L at the phase age / t_MS: cubic in (log M, log Z), linear in phase, on their log10 values
         u = min(max(age * gyr / life, 0.0), 1.0) * (n_phase - 1)
         ip = min(int(u), n_phase - 2)

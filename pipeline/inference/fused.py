@@ -174,11 +174,22 @@ class FusedGridLogProb:
                       np.ascontiguousarray(grid.table[..., qr], dtype=float).ravel(),
                       np.ascontiguousarray(grid.table[..., ql], dtype=float).ravel())
         self._kernel = _compile()
+        prior_ints = ints.copy()
+        prior_ints[kern.I_PRIOR_ONLY] = 1
+        self._prior_args = (prior_ints, *self._args[1:])
 
     def __call__(self, theta) -> np.ndarray:
+        """Log-posterior, [n]."""
         theta = np.ascontiguousarray(np.atleast_2d(theta), dtype=float)
         out = np.empty(theta.shape[0])
         self._kernel(theta, out, *self._args)
+        return out
+
+    def log_prior(self, theta) -> np.ndarray:
+        """Log prior (declared priors, [Fe/H], the support and the age-prior term), [n]."""
+        theta = np.ascontiguousarray(np.atleast_2d(theta), dtype=float)
+        out = np.empty(theta.shape[0])
+        self._kernel(theta, out, *self._prior_args)
         return out
 
 

@@ -151,6 +151,12 @@ class Posterior:
                           f"inside the support of the stages: {int(bad.sum())} of {size} samples still outside")
 
     def log_prior(self, theta):
+        """Log prior [n] of ``theta`` [n, ndim], inside the components' supports (fused path when it applies)."""
+        fused = self._fused if self._fused is not None else self._build_fused()
+        return fused.log_prior(theta) if fused else self.general_log_prior(theta)
+
+    def general_log_prior(self, theta):
+        """Log prior [n] through each stage's own methods."""
         theta = np.atleast_2d(theta)
         lp = np.zeros(theta.shape[0])
         for j, prior in enumerate(self.priors):
@@ -211,7 +217,7 @@ class Posterior:
         theta = np.atleast_2d(theta)
         out = np.full(theta.shape[0], -np.inf)
         with np.errstate(all="ignore"):
-            lp = self.log_prior(theta)
+            lp = self.general_log_prior(theta)
             ok = np.isfinite(lp)
             if ok.all():  # the common case in a converging chain: no fancy indexing
                 out = lp + self.log_likelihood(theta)

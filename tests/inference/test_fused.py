@@ -1,10 +1,10 @@
 """The fused log-posterior of the track-grid stages equals the general, stage-by-stage path.
 
 The reference is radwalk's own general path (:meth:`radwalk.inference.posterior.Posterior.general`), which the
-other tests check against published values; the fused loop must reproduce it to 1e-10 (relative) at random
-points, and give -inf at exactly the same points (outside a prior, past the end of the main sequence, off the
-grid).  Points are drawn from the priors (a quarter of them outside the support) and from the posterior's
-neighbourhood of an invented star.
+other tests check against published values; the fused loop must reproduce it (and the log prior alone) to
+1e-10 (relative) at random points, and give -inf at exactly the same points (outside a prior, past the end of
+the main sequence, off the grid).  Points are drawn from the priors inside the support, from each prior alone
+(many outside the support) and beyond the priors, for an invented star.
 """
 
 from __future__ import annotations
@@ -48,6 +48,11 @@ def _assert_same(post, theta):
     ok = np.isfinite(general)
     assert ok.sum() > theta.shape[0] // 4  # enough finite points to mean something
     np.testing.assert_allclose(fused[ok], general[ok], rtol=RTOL, atol=0.0)
+    # the prior alone (prior draws and the optimizer's starts use it)
+    general, fused = post.general_log_prior(theta), post.log_prior(theta)
+    assert (np.isneginf(general) == np.isneginf(fused)).all()
+    ok = np.isfinite(general)
+    np.testing.assert_allclose(fused[ok], general[ok], rtol=RTOL, atol=1e-12)
 
 
 @pytest.mark.parametrize("case", ["default", "feh", "no-luminosity", "teff-only", "floors"])
@@ -97,3 +102,4 @@ def test_other_stages_keep_the_general_path():
         assert not post.fused
         theta = post.sample_prior(np.random.default_rng(0), 50)
         np.testing.assert_array_equal(post(theta), post.general(theta))
+        np.testing.assert_array_equal(post.log_prior(theta), post.general_log_prior(theta))
