@@ -36,7 +36,7 @@ lint: $(STAMP)
 
 bench: $(STAMP)
 	$(BIN)/python benchmarks/sampler_cost.py
-	$(BIN)/python benchmarks/catalog_throughput.py
+	$(BIN)/python benchmarks/catalog_throughput.py --memory 500
 
 clean:
 	rm -rf $(VENV) build *.egg-info radwalk-demo
