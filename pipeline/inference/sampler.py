@@ -25,9 +25,9 @@ The values are emcee's :func:`emcee.autocorr.integrated_time` to rounding
 from __future__ import annotations
 
 import math
+import sys
 from dataclasses import dataclass
 
-import emcee
 import numpy as np
 from scipy.optimize import minimize
 
@@ -37,6 +37,42 @@ from radwalk.inference.posterior import Posterior
 from radwalk.results.chain import ChainFile
 
 _BIG = 1e300
+
+
+def _gaussian_kde(*args, **kwargs):
+    from scipy.stats import gaussian_kde
+
+    return gaussian_kde(*args, **kwargs)
+
+
+def _import_emcee():
+    """emcee, without the scipy.stats import its KDE move makes when emcee is imported.
+
+    Nothing here uses that move, and importing scipy.stats costs about 0.35 s of
+    CPU in every fresh process (a quarter of what a worker spends before its
+    first sample; benchmarks/startup_cost.py).  scipy.stats is hidden while
+    emcee is imported (a ``None`` entry in ``sys.modules`` makes that import
+    fail, which emcee expects) and the move is then given a ``gaussian_kde``
+    that imports scipy.stats when first called, so it still works for anyone
+    who uses it.  If scipy.stats or emcee is already loaded, a plain import.
+    """
+    if "emcee" in sys.modules or "scipy.stats" in sys.modules:
+        import emcee
+
+        return emcee
+    sys.modules["scipy.stats"] = None
+    try:
+        import emcee
+        import emcee.moves.kde
+    finally:
+        if sys.modules.get("scipy.stats", 0) is None:
+            del sys.modules["scipy.stats"]
+    if emcee.moves.kde.gaussian_kde is None:
+        emcee.moves.kde.gaussian_kde = _gaussian_kde
+    return emcee
+
+
+emcee = _import_emcee()
 
 
 def MOVES():
