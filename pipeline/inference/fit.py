@@ -115,11 +115,13 @@ def _passed_probe_key(entry, options: tuple) -> str | None:
 
     The probe costs about 0.14 s of CPU in every fresh process and its outcome
     depends only on the law's source and the physics modules it imports, the
-    contract checks (every module of :mod:`radwalk.host`), the options and the
-    numpy and scipy versions: all are in the key.  A plugin's law is probed
-    every time: the modules it imports from outside radwalk are seen by no hash.
+    contract checks (every module of :mod:`radwalk.host`) and the numpy and
+    scipy versions: all are in the key.  Probed every time: a plugin's law (the
+    modules it imports from outside radwalk are seen by no hash) and a law given
+    options (an option may name a file, such as the tabulated law's table,
+    whose content no hash here sees).
     """
-    if entry.source != "built-in":
+    if entry.source != "built-in" or options:
         return None
     import hashlib
     import inspect
@@ -136,7 +138,7 @@ def _passed_probe_key(entry, options: tuple) -> str | None:
                for p in sorted(host.rglob("*.py"))}
     sources[module.__name__] = hashlib.sha256(Path(module.__file__).read_bytes()).hexdigest()
     sources.update(solver_sources(module.__name__))
-    ident = {"law": entry.component.name, "options": repr(options), "checks": PROBE_CHECKS, "points": PROBE_POINTS,
+    ident = {"law": entry.component.name, "checks": PROBE_CHECKS, "points": PROBE_POINTS,
              "sources": sources, "numpy": np.__version__, "scipy": scipy.__version__,
              "python": sys.version.split()[0]}
     return hashlib.sha256(json.dumps(ident, sort_keys=True).encode()).hexdigest()
