@@ -67,6 +67,7 @@ import numpy as np
 
 from radwalk import constants as const
 from radwalk.errors import ConfigError, ModelError
+from radwalk.forward import disk_memo
 from radwalk.forward.grid import cache_dir
 from radwalk.physics.structure.calibration import CALIBRATED_ALPHA, CALIBRATED_Y0, composition_from_helium
 from radwalk.physics.structure.evolution import X_C_END
@@ -321,7 +322,8 @@ def solver_sources(root: str = _SOURCE_ROOT) -> dict:
         numbers (:data:`_NUMERIC_MODULES`): the host's interfaces and errors
         are followed but not hashed, so editing them does not invalidate grids.
     """
-    seen, todo = {}, [root]
+    seen, todo, new = {}, [root], {}
+    memo = _import_memo()
     while todo:
         name = todo.pop()
         if name in seen or not name.startswith("radwalk"):
@@ -340,8 +342,28 @@ def solver_sources(root: str = _SOURCE_ROOT) -> dict:
             seen[name] = None
             continue
         seen[name] = _sha(path)
-        todo.extend(_imported_names(path, name, False) - set(seen))
+        # Parsing is what costs (~0.1 s of CPU per process for the tracks' modules); the names a file imports
+        # depend only on its bytes, its name and this scanner, all in the key.
+        key = f"{name}:{seen[name]}:{memo['scanner']}"
+        names = memo.get(key)
+        if names is None:
+            names = memo[key] = new[key] = sorted(_imported_names(path, name, False))
+        todo.extend(set(names) - set(seen))
+    disk_memo.save("imports", new)
     return {k: v for k, v in sorted(seen.items()) if v is not None and k.startswith(_NUMERIC_MODULES)}
+
+
+_IMPORTS = {}
+
+
+def _import_memo() -> dict:
+    """The imported names of source files already parsed (this process's and the cache folder's)."""
+    scanner = _sha(__file__)  # this module holds the scanner: editing it re-parses every file
+    if _IMPORTS.get("scanner") != scanner:
+        _IMPORTS.clear()
+        _IMPORTS.update(disk_memo.load("imports"))
+        _IMPORTS["scanner"] = scanner
+    return _IMPORTS
 
 
 def opacity_identity(kappa) -> dict:

@@ -28,6 +28,7 @@ from radwalk.errors import (
     ValidityWarning,
     environment_cause,
 )
+from radwalk.forward import disk_memo
 from radwalk.forward.quantities import output_unit
 from radwalk.forward.stages import StageSet
 from radwalk.host.config import RunConfig
@@ -89,10 +90,13 @@ def check_opacity_contract(plugins: tuple, name: str, options: tuple = ()) -> No
     NaN, zero, negative or wrongly shaped values is named at once, instead of
     surfacing as a sampler that finds no finite posterior.
     """
-    from radwalk.host.contracts import check_component
-
     reg = registry_for(plugins)
     entry = reg.entries["opacity"][name]
+    memo_key = _passed_probe_key(entry, options)
+    if memo_key is not None and memo_key in disk_memo.load("opacity-contract"):
+        return
+    from radwalk.host.contracts import check_component
+
     report = check_component(entry, grid_points=PROBE_POINTS, options=dict(options) or None, registry=reg,
                              checks=PROBE_CHECKS)
     bad = report.failed()
@@ -102,6 +106,42 @@ def check_opacity_contract(plugins: tuple, name: str, options: tuple = ()) -> No
             f"range: {bad[0].detail}; `radwalk check-plugin` prints the full table",
             plugin=entry.source,
         )
+    if memo_key is not None:
+        disk_memo.save("opacity-contract", {memo_key: True})
+
+
+def _passed_probe_key(entry, options: tuple) -> str | None:
+    """Key under which a built-in law's passed probe is kept in the cache folder (None: probe every time).
+
+    The probe costs about 0.14 s of CPU in every fresh process and its outcome
+    depends only on the law's source and the physics modules it imports, the
+    contract checks (every module of :mod:`radwalk.host`) and the numpy and
+    scipy versions: all are in the key.  Probed every time: a plugin's law (the
+    modules it imports from outside radwalk are seen by no hash) and a law given
+    options (an option may name a file, such as the tabulated law's table,
+    whose content no hash here sees).
+    """
+    if entry.source != "built-in" or options:
+        return None
+    import hashlib
+    import inspect
+    import json
+    import sys
+
+    import scipy
+
+    from radwalk.forward.model_grid import solver_sources
+
+    module = inspect.getmodule(type(entry.component))
+    host = Path(__file__).resolve().parent.parent / "host"
+    sources = {p.relative_to(host).as_posix(): hashlib.sha256(p.read_bytes()).hexdigest()
+               for p in sorted(host.rglob("*.py"))}
+    sources[module.__name__] = hashlib.sha256(Path(module.__file__).read_bytes()).hexdigest()
+    sources.update(solver_sources(module.__name__))
+    ident = {"law": entry.component.name, "checks": PROBE_CHECKS, "points": PROBE_POINTS,
+             "sources": sources, "numpy": np.__version__, "scipy": scipy.__version__,
+             "python": sys.version.split()[0]}
+    return hashlib.sha256(json.dumps(ident, sort_keys=True).encode()).hexdigest()
 
 
 def _percentiles(x):

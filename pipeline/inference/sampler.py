@@ -8,22 +8,71 @@ changed by less than ``tau_change`` since the previous chunk, or at
 ``max_steps`` (flagged not converged, with the reason).  Chains stay in
 memory and are appended to an HDF5 file once per chunk
 (:class:`radwalk.results.chain.ChainFile`), so a running fit can be inspected.
+
+Cost of the checks.  tau is checked after every chunk, but not by analysing
+the whole chain again (which made the checks' total cost grow with the square
+of the chain's length): :class:`radwalk.inference.autocorr.RunningAutocorrTime`
+keeps the autocorrelation sums up to the lags the estimate uses and extends
+them by each new chunk, so a check costs about the same at step 20,000 as at
+step 2,000 and the checks' total grows linearly with the chain.  It passes over
+the whole chain only when the estimate's window outgrows the lags it holds
+(then it at least doubles them): at most ``log2(max_steps / 256) + 1`` times in
+a run, in practice once or twice while the walkers leave their starting ball.
+The values are emcee's :func:`emcee.autocorr.integrated_time` to rounding
+(benchmarks/convergence_checks.py times both ways).
 """
 
 from __future__ import annotations
 
 import math
+import sys
 from dataclasses import dataclass
 
-import emcee
 import numpy as np
 from scipy.optimize import minimize
 
 from radwalk.host.config import SamplerConfig
+from radwalk.inference.autocorr import RunningAutocorrTime
 from radwalk.inference.posterior import Posterior
 from radwalk.results.chain import ChainFile
 
 _BIG = 1e300
+
+
+def _gaussian_kde(*args, **kwargs):
+    from scipy.stats import gaussian_kde
+
+    return gaussian_kde(*args, **kwargs)
+
+
+def _import_emcee():
+    """emcee, without the scipy.stats import its KDE move makes when emcee is imported.
+
+    Nothing here uses that move, and importing scipy.stats costs about 0.35 s of
+    CPU in every fresh process (a quarter of what a worker spends before its
+    first sample; benchmarks/startup_cost.py).  scipy.stats is hidden while
+    emcee is imported (a ``None`` entry in ``sys.modules`` makes that import
+    fail, which emcee expects) and the move is then given a ``gaussian_kde``
+    that imports scipy.stats when first called, so it still works for anyone
+    who uses it.  If scipy.stats or emcee is already loaded, a plain import.
+    """
+    if "emcee" in sys.modules or "scipy.stats" in sys.modules:
+        import emcee
+
+        return emcee
+    sys.modules["scipy.stats"] = None
+    try:
+        import emcee
+        import emcee.moves.kde
+    finally:
+        if sys.modules.get("scipy.stats", 0) is None:
+            del sys.modules["scipy.stats"]
+    if emcee.moves.kde.gaussian_kde is None:
+        emcee.moves.kde.gaussian_kde = _gaussian_kde
+    return emcee
+
+
+emcee = _import_emcee()
 
 
 def MOVES():
@@ -126,16 +175,18 @@ def run_chain(post: Posterior, cfg: SamplerConfig, seed: np.random.SeedSequence,
     store = ChainFile(chain_path, post.names, cfg.walkers) if chain_path else None
     state, steps, old_tau = p0, 0, None
     converged, reason = False, ""
-    tau = np.full(post.ndim, np.nan)
+    tau = change = np.full(post.ndim, np.nan)
+    autocorr = RunningAutocorrTime()
     while steps < cfg.max_steps:
         n = min(cfg.chunk, cfg.max_steps - steps)
         state = sampler.run_mcmc(state, n, progress=False)
         steps += n
         with np.errstate(invalid="ignore", divide="ignore"):  # a walker that did not move gives 0/0
-            tau = emcee.autocorr.integrated_time(sampler.get_chain(), tol=0, quiet=True)
+            tau = autocorr.update(sampler.get_chain())
         tau = np.where(np.isfinite(tau), tau, float(steps))  # unknown: as long as the chain
         long_enough = steps > cfg.tau_multiple * np.max(tau)
-        stable = old_tau is not None and np.all(np.abs(tau - old_tau) / tau < cfg.tau_change)
+        change = np.abs(tau - old_tau) / tau if old_tau is not None else np.full(post.ndim, np.nan)
+        stable = old_tau is not None and bool(np.all(change < cfg.tau_change))
         if store:
             store.append(sampler.get_chain()[-n:], sampler.get_log_prob()[-n:], steps=steps,
                          tau=tau, converged=bool(long_enough and stable))
@@ -153,8 +204,8 @@ def run_chain(post: Posterior, cfg: SamplerConfig, seed: np.random.SeedSequence,
             reason = (f"stopped at max_steps = {cfg.max_steps}: chain of {steps} steps is shorter than "
                       f"{cfg.tau_multiple:g} x tau = {cfg.tau_multiple * tmax:.0f} (tau_max = {tmax:.1f})")
         else:
-            change = float(np.max(np.abs(tau - old_tau) / tau)) if old_tau is not None else float("nan")
-            reason = (f"stopped at max_steps = {cfg.max_steps}: tau still changing by {100 * change:.1f} % "
+            # the change measured at the last check
+            reason = (f"stopped at max_steps = {cfg.max_steps}: tau still changing by {100 * np.max(change):.1f} % "
                       f"(tolerance {100 * cfg.tau_change:g} %)")
     burn = min(int(math.ceil(3 * tmax)), steps // 2)
     thin = max(1, int(0.5 * np.min(tau)))

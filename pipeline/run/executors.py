@@ -117,8 +117,9 @@ def _pool_init():
 def _start_method() -> str:
     # "spawn": a fork of a parent that runs threads (the progress bar's monitor, a Dask client)
     # can deadlock, and under "forkserver" the workers are the fork server's children, which
-    # outlives a killed run, so they would not die with it.  Workers import the package once
-    # (about 2 s), nothing against minutes of stars.
+    # outlives a killed run, so they would not die with it.  A worker spends about 0.9 s of CPU
+    # before its first sample (imports, most of it; benchmarks/startup_cost.py), nothing against
+    # minutes of stars.
     return "spawn"
 
 
