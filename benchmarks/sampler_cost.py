@@ -53,7 +53,7 @@ PHASES = (
     ("optimizer", "radwalk.inference.sampler", "find_map"),
     ("optimizer", "radwalk.inference.sampler", "initial_ball"),
     ("sampling", "emcee.ensemble", "EnsembleSampler.run_mcmc"),
-    ("convergence checks", "emcee.autocorr", "integrated_time"),
+    ("convergence checks", "radwalk.inference.autocorr", "RunningAutocorrTime.update"),
     ("chain writes", "radwalk.results.chain", "ChainFile.append"),
     ("derived quantities", "radwalk.inference.fit", "derive"),
     ("derived quantities", "radwalk.inference.fit", "check_reachable"),
