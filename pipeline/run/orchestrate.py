@@ -492,7 +492,11 @@ def _draw(ex, stars, out, config, hashes, quiet, outcome):
             for fut in done:
                 e = pending.pop(fut)
                 result = ex.result(fut)
-                if result.plots:
+                folder = star_folder(out, e.id)
+                if result.plots and needs_figures(folder, read_document(folder / STAR_SUMMARY)):
+                    LOG.warning("figures of star %r were drawn where this machine does not see them (a Dask "
+                                "worker without the shared run folder)", e.id)
+                elif result.plots:
                     outcome.drawn += 1
                     LOG.info("figures of star %r: %d drawn in %.1f s", e.id, len(result.plots), result.seconds)
                 else:

@@ -155,3 +155,16 @@ def test_stored_results_equal_those_of_a_fit_that_draws_its_own_plots(setup, tmp
         assert np.array_equal(p.r_rel, q.r_rel) and p.band_notes == q.band_notes
         for key in p.bands:
             assert np.array_equal(p.bands[key], q.bands[key], equal_nan=True), key
+
+
+@pytest.mark.dask
+def test_dask_workers_draw_the_plots_after_the_fits(setup):
+    d, config = setup
+    (d / "two.csv").write_text("\n".join(CATALOG.splitlines()[:3]) + "\n")
+    out = d / "dask"
+    o = run_catalog(d / "two.csv", out, config, executor="dask", workers=1, report=False, quiet=True)
+    assert (o.computed, o.drawn, o.undrawn) == (2, 2, 0)
+    for s in ("a", "b"):
+        assert len(_doc(out, s)["plots"]) == 5
+    assert max((star_folder(out, s) / "chain.h5").stat().st_mtime_ns for s in ("a", "b")) <= \
+        min(p.stat().st_mtime_ns for p in _pngs(out))
