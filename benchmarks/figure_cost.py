@@ -15,6 +15,25 @@ the caches of text layout that later repeats hit are only partly warm there.
 ``--products FILE`` keeps the fitted star's products (a pickle) in FILE and
 reuses them on the next call, so that figure code can be compared without
 refitting.  Run ``uptime`` beside it: the machine is shared.
+
+Measured (2 shared cores, load average 2.7 -> 2.0 over the runs; one star's products, the figure code of
+before and after the change run alternately, twice each; first draw in the process, CPU s, wall within 1 %):
+
+    figure              before          after           after / before
+    corner_parameters   0.55  0.55      0.49  0.52      0.92
+    corner_timescales   0.70  0.68      0.55  0.54      0.79
+    trace               0.86  0.84      0.50  0.50      0.59
+    profile             1.44  1.39      0.86  0.87      0.61
+    predictive          0.51  0.52      0.30  0.30      0.58
+    all five            4.06  3.97      2.69  2.72      0.67
+
+Changes kept: fixed margins in inches instead of constrained layout (trace, profile, predictive, opacity
+comparison; the layout engine measured every text twice per save), plain-text tick labels (no mathtext parse
+per label; about 10 % of the five), PNG zlib level 1 (trace -20 %; files 2-7 % larger).  Tried and dropped: a
+third of the trace's points (trace -15 %, but visibly thinner walker paths).  One-off costs of the same star in
+the run that drew after the fits (load 3.5 -> 2.9): fit 23.7 s CPU (4,600 steps), rebuilding its products from
+the folder 0.02 s, the profile bands' 20 solved structures 47 s -- the largest part of a star's figures, left to
+the profile model (``band_stars``).
 """
 
 from __future__ import annotations
