@@ -15,7 +15,8 @@ def add_run_parser(sub, common):
     """``radwalk run CATALOG --out DIR ...``"""
     p = sub.add_parser("run", parents=[common], help="fit every star of a catalog into an output folder",
                        description="Fits every star of CATALOG and writes summary tables, per-star folders and "
-                       "a report into DIR.  Running the same command again resumes an interrupted run.")
+                       "a report into DIR; each star's plots are drawn once every star is fitted and stored.  "
+                       "Running the same command again resumes an interrupted run.")
     p.add_argument("catalog", metavar="CATALOG", help="ECSV, FITS, VOTable or CSV table of stars")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (created if needed)")
     p.add_argument("--config", metavar="FILE", help="run config (TOML)")
@@ -26,6 +27,8 @@ def add_run_parser(sub, common):
     p.add_argument("--seed", type=SEED, metavar="S", help="global seed (replaces the config's)")
     p.add_argument("--opacity", metavar="LAW[,LAW...]", help="opacity law, or several to compare")
     p.add_argument("--force", action="store_true", help="recompute every star; accept a changed catalog or config")
+    p.add_argument("--no-plots", action="store_true",
+                   help="fit and store the stars only, without their PNG plots (a later run without it draws them)")
     p.add_argument("--no-report", action="store_true", help="skip the HTML report")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_run)
@@ -47,7 +50,8 @@ def cmd_run(args) -> int:
     from radwalk.run.orchestrate import run_catalog
 
     outcome = run_catalog(args.catalog, args.out, config, executor=executor, workers=args.workers,
-                          scheduler=args.scheduler, force=args.force, report=not args.no_report, quiet=args.quiet)
+                          scheduler=args.scheduler, force=args.force, report=not args.no_report, quiet=args.quiet,
+                          plots=not args.no_plots)
     for note in outcome.notices:
         print(f"notice: {note}", file=sys.stderr)
     print_outcome(outcome)

@@ -42,8 +42,11 @@ from radwalk.results.files import atomic_path  # noqa: E402
 from radwalk.results.products import BAND_PERCENTILES, FitProducts  # noqa: E402
 
 DPI = 110
+# Tick labels as plain text: as mathtext each distinct label is parsed (pyparsing) before it is drawn, about a
+# tenth of a star's figure time (benchmarks/figure_cost.py); they look the same.  Titles, axis labels and log
+# axes keep their mathtext.
 STYLE = {"font.size": 10, "axes.labelsize": 11, "axes.titlesize": 11, "xtick.labelsize": 9,
-         "ytick.labelsize": 9, "legend.fontsize": 9, "axes.formatter.use_mathtext": True}
+         "ytick.labelsize": 9, "legend.fontsize": 9, "axes.formatter.use_mathtext": False}
 POSTERIOR = "#1f4e79"
 MAP_COLOUR = "#d62728"
 PRIOR_COLOUR = "#d07000"
@@ -124,6 +127,22 @@ def _value_tex(v: float, e: float) -> str:
     return f"{v:.{dec}f} ± {e:.{dec}f}"
 
 
+def _place_grid(fig: Figure, nrows: int, ncols: int, left: float, right: float, bottom: float, top: float,
+                wspace: float = 0.0, hspace: float = 0.0):
+    """Places a figure's grid of axes with margins and gaps given in inches.
+
+    Fixed margins instead of a layout engine: constrained layout measures every
+    text of the figure at each save, twice, which was about half of the time of
+    drawing the trace, profile and predictive figures (benchmarks/figure_cost.py).
+    The margins are sized for the labels these figures draw.
+    """
+    width, height = fig.get_size_inches()
+    axis_w = (width - left - right - (ncols - 1) * wspace) / ncols
+    axis_h = (height - bottom - top - (nrows - 1) * hspace) / nrows
+    fig.subplots_adjust(left=left / width, right=1 - right / width, bottom=bottom / height, top=1 - top / height,
+                        wspace=wspace / axis_w, hspace=hspace / axis_h)
+
+
 def _note(fig: Figure, lines, y: float = 0.01):
     if lines:
         text = "\n".join(textwrap.fill(s, 110) for s in lines)
@@ -167,7 +186,7 @@ def _corner_figure(data: np.ndarray, labels, ranges, truths=None):
     corner.corner(
         data, fig=fig, range=ranges, bins=bins, labels=labels, truths=truths, truth_color=MAP_COLOUR,
         color=POSTERIOR, quantiles=[0.16, 0.5, 0.84], show_titles=False, levels=CONTOUR_LEVELS,
-        label_kwargs={"fontsize": 12}, max_n_ticks=4, use_math_text=True, labelpad=0.02, smooth=1.0,
+        label_kwargs={"fontsize": 12}, max_n_ticks=4, use_math_text=False, labelpad=0.02, smooth=1.0,
     )
     height = width + top_room
     # corner placed the grid for a square figure; keep its inch margins with the extra top room
@@ -334,7 +353,7 @@ def trace_figure(products: FitProducts) -> Figure:
     with matplotlib.rc_context(STYLE):
         chain = products.chain
         steps, walkers, ndim = chain.chain.shape
-        fig = Figure(figsize=(9.5, 1.55 * ndim + 1.3), layout="constrained")
+        fig = Figure(figsize=(9.5, 1.55 * ndim + 1.3))
         axes = fig.subplots(ndim, 1, sharex=True, squeeze=False)[:, 0]
         stride = max(1, steps // 3000)  # Agg draws a few thousand points per walker quickly
         x = np.arange(0, steps, stride)
@@ -359,7 +378,10 @@ def trace_figure(products: FitProducts) -> Figure:
         drawn = products.param_labels[ndim:]
         if drawn:  # parameters the likelihood never sees are drawn from their priors, not walked
             head += "\nnot sampled (drawn from their priors afterwards): " + ", ".join(_symbol(x) for x in drawn)
-        fig.suptitle(head, fontsize=10.5, color="black" if chain.converged else MAP_COLOUR)
+        fig.suptitle(head, fontsize=10.5, color="black" if chain.converged else MAP_COLOUR,
+                     y=1 - 0.08 / fig.get_figheight())
+        _place_grid(fig, ndim, 1, left=0.85, right=0.12, bottom=0.5, top=0.22 + 0.19 * (head.count("\n") + 1),
+                    hspace=0.1)
     return fig
 
 
@@ -439,8 +461,9 @@ def profile_figure(products: FitProducts) -> Figure:
     lo95, lo68, mid, hi68, hi95 = (BAND_PERCENTILES.index(p) for p in (2.5, 16.0, 50.0, 84.0, 97.5))
     products.ensure_bands()  # a track-grid fit solves its band stars only now
     with matplotlib.rc_context(STYLE):
-        fig = Figure(figsize=(10, 10.5), layout="constrained")
+        fig = Figure(figsize=(10, 10.5))
         grid = fig.subplots(3, 2, sharex=True)
+        _place_grid(fig, 3, 2, left=0.85, right=0.12, bottom=0.5, top=0.62, wspace=0.95, hspace=0.62)
         r = np.asarray(products.r_rel, dtype=float)
         convective = products.bands.get("convective")
         shades = []
@@ -498,8 +521,9 @@ PREDICTIVE = (("radius", "radius"), ("luminosity", "luminosity"), ("teff", "effe
 def predictive_figure(products: FitProducts) -> Figure:
     """Posterior-predictive R, L and T_eff against the observations (or 'not measured')."""
     with matplotlib.rc_context(STYLE):
-        fig = Figure(figsize=(12, 4.2), layout="constrained")
+        fig = Figure(figsize=(12, 4.2))
         axes = fig.subplots(1, len(PREDICTIVE), squeeze=False)[0]
+        _place_grid(fig, 1, len(PREDICTIVE), left=0.7, right=0.35, bottom=0.85, top=0.7, wspace=0.75)
         for (key, title), ax in zip(PREDICTIVE, axes):
             pred = np.asarray(products.derived.get(key, []), dtype=float)
             pred = pred[np.isfinite(pred)]
@@ -529,7 +553,7 @@ def predictive_figure(products: FitProducts) -> Figure:
         handles = [Patch(color=POSTERIOR, alpha=0.55, label="posterior predictive"),
                    Line2D([], [], color=OBSERVED, lw=1.6, label="observed"),
                    Patch(color="0.5", alpha=0.22, label=r"observed $\pm1\sigma$")]
-        fig.legend(handles=handles, loc="outside lower center", ncols=3, frameon=False)
+        fig.legend(handles=handles, loc="lower center", bbox_to_anchor=(0.5, 0.0), ncols=3, frameon=False)
         fig.suptitle(f"{plain(products.star.id)}: posterior-predictive check (opacity {plain(products.opacity)})",
                      fontsize=12)
     return fig
@@ -547,8 +571,9 @@ def _mass_samples(products: FitProducts):
 def opacity_comparison_figure(comparison: dict) -> Figure:
     """Mass and photon diffusion time under each opacity law, overlaid."""
     with matplotlib.rc_context(STYLE):
-        fig = Figure(figsize=(11, 4.4), layout="constrained")
+        fig = Figure(figsize=(11, 4.4))
         ax_m, ax_t = fig.subplots(1, 2)
+        _place_grid(fig, 1, 2, left=0.75, right=0.2, bottom=0.6, top=0.75, wspace=0.85)
         some = next(iter(comparison.values()))
         masses = {op: _mass_samples(p) for op, p in comparison.items()}
         times = {}
@@ -635,7 +660,8 @@ def save_figure(fig: Figure, path) -> Path:
     """Writes ``fig`` as PNG to ``path`` atomically."""
     path = Path(path)
     with matplotlib.rc_context(STYLE), atomic_path(path) as tmp:
-        fig.savefig(tmp, dpi=DPI, format="png", facecolor="white")
+        # zlib level 1: the trace's PNG was a fifth of its time at the default level 6, for files 2-7 % smaller
+        fig.savefig(tmp, dpi=DPI, format="png", facecolor="white", pil_kwargs={"compress_level": 1})
         # the temporary file is created private (0600); a report's images must be readable by a web server
         os.chmod(tmp, 0o644)
     return path

@@ -668,6 +668,7 @@ def star_page(out_dir: Path, e: StarEntry, prev: StarEntry | None, nxt: StarEntr
         sampler = s.get("sampler") or {}
         steps, tau = sampler.get("steps"), sampler.get("tau_max")
         figures, missing = _star_figures(out_dir, e)
+        undrawn = not isinstance(s.get("plots"), dict)
         context.update(
             warnings=[str(w) for w in s.get("warnings") or []], headline=_headline(s),
             parameters=_parameter_rows(s), unconstrained=unconstrained_sentence(s), fixed=s.get("fixed") or {},
@@ -675,7 +676,7 @@ def star_page(out_dir: Path, e: StarEntry, prev: StarEntry | None, nxt: StarEntr
             steps_over_tau=steps / tau if _finite(steps) and _finite(tau) and tau else None,
             ppc_pvalue=s.get("ppc_pvalue"), poor_fit=_finite(s.get("ppc_pvalue")) and s["ppc_pvalue"] < PPC_POOR,
             opacity=s.get("opacity", ""), stages=s.get("stages") or {}, seed=s.get("seed", ""),
-            seconds=s.get("seconds"), figures=figures, missing=missing)
+            seconds=s.get("seconds"), figures=figures, missing=[] if undrawn else missing, undrawn=undrawn)
     return _render("star.html.j2", **context)
 
 

@@ -14,8 +14,9 @@
     or sees a different file there, loads the uploaded copy.
 
 This is the only module that imports ``distributed``.  Every executor offers
-``slots``, ``submit(star, config, folder, plots, hashes)``, ``wait(pending)``
--> (done, rest), ``result(future)`` and ``close(cancel)``.
+``slots``, ``submit(star, config, folder, plots, hashes)`` (the per-star task; ``task=_figures_task`` with
+``(star, config, folder, hashes)`` draws a stored star's figures instead), ``wait(pending)`` -> (done, rest),
+``result(future)`` and ``close(cancel)``.
 """
 
 from __future__ import annotations
@@ -83,7 +84,20 @@ def _star_task(star, config: RunConfig, folder: str, plots: bool, hashes: dict |
 
     if hashes:
         config = config.with_changes(plugins=worker_plugins(tuple(config.plugins), hashes))
+    if folder:  # an earlier fit's figures must not pass for this fit's
+        from radwalk.run.star_figures import remove_figures
+
+        remove_figures(folder)
     return fit_star(star, config, outdir=folder, plots=plots)
+
+
+def _figures_task(star, config: RunConfig, folder: str, hashes: dict | None = None):
+    """Runs on a worker: draws a stored star's figures (radwalk.run.star_figures)."""
+    from radwalk.run.star_figures import draw_stored_figures
+
+    if hashes:
+        config = config.with_changes(plugins=worker_plugins(tuple(config.plugins), hashes))
+    return draw_stored_figures(star, config, folder)
 
 
 def _die_with_parent():
@@ -132,8 +146,8 @@ class _LocalExecutor:
         self.pool = cf.ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_pool_init)
         self.slots = workers
 
-    def submit(self, *args):
-        return self.pool.submit(_star_task, *args)
+    def submit(self, *args, task=_star_task):
+        return self.pool.submit(task, *args)
 
     def wait(self, pending):
         done, rest = cf.wait(pending, return_when=cf.FIRST_COMPLETED)
@@ -199,8 +213,8 @@ class _DaskExecutor:
                 shutil.copyfile(path, copy)
                 self.client.upload_file(str(copy), load=False)
 
-    def submit(self, *args):
-        return self.client.submit(_star_task, *args, pure=False)
+    def submit(self, *args, task=_star_task):
+        return self.client.submit(task, *args, pure=False)
 
     def wait(self, pending):
         """(done, rest) once a star finishes; RadwalkError when the scheduler has had no worker for a while.

@@ -5,7 +5,16 @@ state file are :mod:`radwalk.run.state`; the local and Dask executors are
 :mod:`radwalk.run.executors`.  Because the per-star task is a pure function
 of (star, config, seed), a resumed run's summary equals that of an
 uninterrupted run.  ``force`` recomputes every star of the catalog (it
-rewrites stars/ entries and never deletes anything else).
+rewrites stars/ entries, a star's earlier figures among them, and never
+deletes anything else).
+
+A run fits and stores every star first (chain files and summary.json, which
+marks the star done) and only then draws the per-star figures, in the same
+pool (:mod:`radwalk.run.star_figures`): the results of the last star do not
+wait for the figures of the first, and a run with ``plots=False`` (``radwalk
+run --no-plots``) draws none.  A stored star without its figures, from such a
+run or one stopped while drawing, gets them from the next run, without being
+fitted again.
 
 On a real cluster, start a scheduler and workers with dask's own commands
 (``dask scheduler`` on one machine, ``dask worker tcp://HOST:8786
@@ -38,7 +47,7 @@ from radwalk.errors import (
     environment_cause,
 )
 from radwalk.host.config import RunConfig, to_toml
-from radwalk.results.document import document, result_document
+from radwalk.results.document import document, read_document, result_document
 from radwalk.results.files import remove_leftovers, write_json, write_table, write_text
 from radwalk.results.layout import (
     LOG_FILE,
@@ -55,6 +64,7 @@ from radwalk.results.layout import (
 from radwalk.run.catalog import Catalog, CatalogEntry, read_catalog
 from radwalk.run.executors import make_executor
 from radwalk.run.lock import folder_lock
+from radwalk.run.star_figures import needs_figures
 from radwalk.run.state import check_state, load_done, new_state, now, plugin_hashes, prepare_output, summary_docs
 
 PROVENANCE_PACKAGES = ("numpy", "scipy", "emcee", "astropy", "h5py", "matplotlib", "dask", "distributed")
@@ -75,6 +85,8 @@ class RunOutcome:
     failed: int = 0
     resumed: int = 0  # skipped: done by an earlier run
     computed: int = 0
+    drawn: int = 0  # stars whose figures this run drew
+    undrawn: int = 0  # fitted stars left without figures (skipped, or drawing failed)
     seconds: float = 0.0
     notices: list = field(default_factory=list)
     report: Path | None = None
@@ -83,6 +95,8 @@ class RunOutcome:
     def line(self) -> str:
         parts = [f"{self.ok} ok", f"{self.not_converged} not converged", f"{self.failed} failed"]
         extra = f" ({self.resumed} done earlier)" if self.resumed else ""
+        if self.undrawn:
+            extra += f"; {self.undrawn} without figures"
         return f"{self.stars} stars: {', '.join(parts)}{extra}, in {_duration(self.seconds)}"
 
 
@@ -202,7 +216,8 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
     quiet : bool
         No progress bar.
     plots : bool
-        Per-star PNGs (the report needs them; off only to save time).
+        Draw the per-star PNGs once every star is fitted and stored (also those a stopped or
+        ``plots=False`` run left out); off, none is drawn and the report says so.
 
     Returns
     -------
@@ -274,16 +289,23 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         state["first_started"] = old.get("first_started", state["first_started"])
     components = check_config(config)
     outcome_notes = list(catalog.notices)
-    todo = [e for e in catalog if e.star is not None
-            and (force or load_done(star_folder(out, e.id), e.star, config) is None)]
+    todo, undrawn = [], []  # stars to fit; stored stars still without their figures
+    for e in catalog:
+        if e.star is None:
+            continue
+        doc = None if force else load_done(star_folder(out, e.id), e.star, config)
+        if doc is None:
+            todo.append(e)
+        elif plots and needs_figures(star_folder(out, e.id), doc):
+            undrawn.append(e)
     if not scheduler:  # processes this machine starts: no more than its cores, nor than stars to compute
-        workers, note = capped_workers(workers, len(todo))
+        workers, note = capped_workers(workers, len(todo) + len(undrawn))
         if note:
             outcome_notes.append(note)
     # The executor starts before any file is written, so an unanswering scheduler changes nothing.
-    if ex is None and todo:
+    if ex is None and (todo or undrawn):
         ex = make_executor(executor, workers, scheduler, config, hashes if executor == "dask" else {})
-    elif ex is not None and not todo:
+    elif ex is not None and not (todo or undrawn):
         ex.close()
         ex = None
     cancel = True
@@ -313,8 +335,16 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
             elif e.row not in waiting:
                 outcome.resumed += 1
                 _count(outcome, load_done(star_folder(out, e.id), e.star, config)["status"])
-        if todo:
-            _compute(ex, todo, out, config, hashes if executor == "dask" else None, plots, quiet, outcome)
+        if todo:  # every star is fitted and stored before any figure is drawn
+            _compute(ex, todo, out, config, hashes if executor == "dask" else None, quiet, outcome)
+        fitted = {e.row for e in todo}
+        if plots:
+            draw = [e for e in catalog if e.row in fitted and needs_figures(
+                star_folder(out, e.id), read_document(star_folder(out, e.id) / STAR_SUMMARY))] + undrawn
+            if draw:
+                _write_summary(out, catalog)  # the fits' table now; rewritten once the figures add their notes
+                _draw(ex, sorted(draw, key=lambda e: e.row), out, config,
+                      hashes if executor == "dask" else None, quiet, outcome)
         cancel = False
     except KeyboardInterrupt as exc:
         if handler is not None:
@@ -337,6 +367,13 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
             LOG.removeHandler(handler)
             handler.close()
     try:
+        for e in catalog:
+            folder = star_folder(out, e.id)
+            if e.star is not None and needs_figures(folder, read_document(folder / STAR_SUMMARY)):
+                outcome.undrawn += 1
+        if outcome.undrawn:
+            LOG.info("%d fitted star(s) without figures%s", outcome.undrawn,
+                     "" if plots else " (figures off in this run; a run with them on draws them)")
         table = _write_summary(out, catalog)
         finished = now()
         provenance = {
@@ -402,7 +439,7 @@ def _count(outcome: RunOutcome, status: str):
         outcome.failed += 1
 
 
-def _compute(ex, todo, out, config, hashes, plots, quiet, outcome):
+def _compute(ex, todo, out, config, hashes, quiet, outcome):
     from tqdm import tqdm
 
     bar = tqdm(total=outcome.stars, initial=outcome.stars - len(todo), unit="star", desc="stars",
@@ -416,7 +453,7 @@ def _compute(ex, todo, out, config, hashes, plots, quiet, outcome):
         while queue or pending:
             while queue and len(pending) < window:
                 e = queue.pop()
-                pending[ex.submit(e.star, config, str(star_folder(out, e.id)), plots, hashes)] = e
+                pending[ex.submit(e.star, config, str(star_folder(out, e.id)), False, hashes)] = e
             done, _ = ex.wait(set(pending))
             for fut in done:
                 e = pending.pop(fut)
@@ -432,6 +469,39 @@ def _compute(ex, todo, out, config, hashes, plots, quiet, outcome):
                 _log_star(doc, result.seconds)
                 bar.update(1)
                 bar.set_postfix(done=done_count, failed=outcome.failed)
+    finally:
+        bar.close()
+
+
+def _draw(ex, stars, out, config, hashes, quiet, outcome):
+    """Draws the figures of stored stars on the executor, a bounded window of them at a time."""
+    from tqdm import tqdm
+
+    from radwalk.run.executors import _figures_task
+
+    bar = tqdm(total=len(stars), unit="star", desc="figures", file=sys.stderr, disable=quiet, dynamic_ncols=True)
+    window = max(4, 2 * ex.slots)
+    queue = list(reversed(stars))
+    pending: dict = {}
+    try:
+        while queue or pending:
+            while queue and len(pending) < window:
+                e = queue.pop()
+                pending[ex.submit(e.star, config, str(star_folder(out, e.id)), hashes, task=_figures_task)] = e
+            done, _ = ex.wait(set(pending))
+            for fut in done:
+                e = pending.pop(fut)
+                result = ex.result(fut)
+                folder = star_folder(out, e.id)
+                if result.plots and needs_figures(folder, read_document(folder / STAR_SUMMARY)):
+                    LOG.warning("figures of star %r were drawn where this machine does not see them (a Dask "
+                                "worker without the shared run folder)", e.id)
+                elif result.plots:
+                    outcome.drawn += 1
+                    LOG.info("figures of star %r: %d drawn in %.1f s", e.id, len(result.plots), result.seconds)
+                else:
+                    LOG.warning("figures of star %r not drawn: %s", e.id, " ".join(result.error.split()))
+                bar.update(1)
     finally:
         bar.close()
 

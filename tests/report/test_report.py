@@ -289,9 +289,10 @@ def test_star_and_catalog_images_are_shown(run_dir):
     assert srcs == [f"../stars/{folder}/{png}" for png in STAR_PNGS]  # in the page's order
     assert all((run_dir / "stars" / folder / png).is_file() for png in STAR_PNGS)
     assert set(s["plots"]) == {p.removesuffix(".png") for p in STAR_PNGS}
-    # a star fitted without PNGs gets a note instead of images
+    # a star fitted without PNGs gets a note instead of images: that none was drawn, and how to draw them
     page = parse(page_of(run_dir, SCRIPT_ID))
-    assert page.attrs("img", "src") == [] and "Not available (no image was written)" in page.all_text()
+    assert page.attrs("img", "src") == [] and "No plots were drawn for this star" in page.all_text()
+    assert "Not available (no image was written)" not in page.all_text()
     srcs = parse(run_dir / "report" / "index.html").attrs("img", "src")
     assert srcs == ["hr_diagram.png", "timescales_vs_mass.png"]
 

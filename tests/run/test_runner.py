@@ -447,10 +447,12 @@ def test_cli_run_and_demo_parsers(base, tmp_path, capsys):
     out = tmp_path / "cli"
     shutil.copytree(base["ref"], out)
     args = parser.parse_args(["run", str(base["catalog"]), "--out", str(out), "--config", str(base["config_path"]),
-                              "--quiet", "--no-report"])
+                              "--quiet", "--no-report", "--no-plots"])
+    assert args.no_plots and not parser.parse_args(["run", "c", "--out", "o"]).no_plots
     assert cmd_run(args) == 0
     printed = capsys.readouterr().out
     assert "5 stars:" in printed and "1 failed" in printed and "(4 done earlier)" in printed
+    assert "4 without figures" in printed and not list((out / "stars").rglob("*.png"))
     assert f"summary: {out / 'summary.ecsv'}" in printed
 
 
