@@ -48,6 +48,9 @@ class StageSet:
     relation: object
     likelihood: object
     options: dict = field(default_factory=dict)  # component name -> {option: value}
+    # True when a fit samples an opacity parameter: each value would get a relation grid of its own (10-20 s to
+    # build, never reused), so the relation is solved directly even for one sample (the optimiser's calls).
+    solve_directly: bool = False
 
     @classmethod
     def build(cls, registry: Registry, names: dict | None = None, options: dict | None = None) -> StageSet:
@@ -152,7 +155,7 @@ class StageSet:
         return {"radius": R, "luminosity": L, "teff": teff_from(R, L)}
 
     def _grid(self, values: dict):
-        if not getattr(self.relation, "gridded", False):
+        if self.solve_directly or not getattr(self.relation, "gridded", False):
             return None
         fixed = {}
         for stage in ("opacity", "relation"):

@@ -30,7 +30,7 @@ from radwalk.errors import (
 )
 from radwalk.forward.quantities import output_unit
 from radwalk.forward.stages import StageSet
-from radwalk.host.config import RunConfig
+from radwalk.host.config import RunConfig, refuse_sampled_opacity
 from radwalk.host.registry import Registry
 from radwalk.inference.derived import band_structures, check_reachable, derive, ppc_pvalue
 from radwalk.inference.posterior import Posterior
@@ -70,6 +70,8 @@ def stages_for(config: RunConfig, opacity: str | None = None) -> StageSet:
             if key in {o.name for o in getattr(comp, "options", ())}:
                 opts.setdefault(comp.name, {})[key] = value
     stages = StageSet.build(reg, names, opts)
+    # before any grid is built or any sampling starts; a sampled law is solved directly, not gridded per value
+    stages.solve_directly = bool(refuse_sampled_opacity(config, stages))
     law = stages.opacity.name
     check_opacity_contract(tuple(config.plugins), law, tuple(sorted(opts.get(law, {}).items())))
     return stages
