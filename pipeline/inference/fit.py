@@ -36,6 +36,7 @@ from radwalk.inference.derived import band_structures, check_reachable, derive, 
 from radwalk.inference.posterior import Posterior
 from radwalk.inference.sampler import run_chain
 from radwalk.inference.star import Star, seed_for
+from radwalk.results.chain import describe_chain_file
 from radwalk.results.document import PERCENTILES, PPC_POOR, result_document
 from radwalk.results.files import remove_leftovers, write_json
 from radwalk.results.layout import STAR_SUMMARY, chain_file_name
@@ -198,7 +199,7 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
         param_labels=[p.latex or p.name for p in all_params], param_units=[p.unit for p in all_params],
         priors=all_priors, samples=flat, derived=derived, r_rel=r_rel, bands=bands,
         observed=star.user_values(),
-        band_source=None if bands is not None else partial(band_structures, post, flat[idx]),
+        band_source=None if bands is not None else partial(band_structures, post, flat[idx]), derived_ok=ok,
     )
     return summary, products
 
@@ -224,6 +225,7 @@ def fit_laws(star: Star, config: RunConfig, folder: Path | None = None) -> tuple
     if folder is not None:
         for j, op in enumerate(config.opacity_names()):
             part = folder / chain_file_name(op, primary=j == 0, partial=True)
+            describe_chain_file(part, products[op], fits[op], config.seed)  # units, provenance, derived samples
             part.replace(folder / chain_file_name(op, primary=j == 0))
     return summary, products
 
