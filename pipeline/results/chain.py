@@ -22,15 +22,13 @@ from __future__ import annotations
 
 import json
 import math
-import sys
 from pathlib import Path
 
 import numpy as np
 
 from radwalk.results.files import ensure_space
+from radwalk.results.provenance import package_versions
 
-# Packages whose versions a chain file records (besides radwalk and Python).
-VERSION_PACKAGES = ("numpy", "scipy", "emcee", "astropy", "h5py")
 LAYOUT = ("chain [steps, walkers, ndim]: every walker's position at every step, columns as attribute names "
           "(units: attribute units); log_prob [steps, walkers]: log posterior; the posterior samples are "
           "chain[burn::thin] (attributes burn, thin); derived/parameters [n, nparams]: the thinned samples the "
@@ -104,21 +102,6 @@ def posterior_interval(chain_file, name: str, level: float = 0.95, burn: int = 0
         return (math.nan, math.nan)
     lo, hi = np.percentile(x, [50 * (1 - level), 50 * (1 + level)])
     return float(lo), float(hi)
-
-
-def package_versions() -> dict:
-    """radwalk's, Python's and :data:`VERSION_PACKAGES`' versions ("not installed" where absent)."""
-    from importlib import metadata
-
-    from radwalk import __version__
-
-    out = {"radwalk": __version__, "python": sys.version.split()[0]}
-    for name in VERSION_PACKAGES:
-        try:
-            out[name] = metadata.version(name)
-        except metadata.PackageNotFoundError:
-            out[name] = "not installed"
-    return out
 
 
 def _text(values) -> list[str]:
