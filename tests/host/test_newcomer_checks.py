@@ -168,3 +168,31 @@ def test_fit_refusal_names_rho_t_and_r_over_r(tmp_path):
     assert match, text
     assert float(match.group(3)) < 8e3
     assert "np.float64" not in text and "grid point" not in text
+
+
+def test_a_profile_failure_names_the_layer_by_r_over_r(tmp_path):
+    path = tmp_path / "bad_profile.py"
+    path.write_text(HEADER + """
+from radwalk.host.components import Profile
+from radwalk.plugins.profiles import Polytrope
+
+
+class Negative(Polytrope):
+    name = "negative-layer"
+
+    def profile(self, M, R, X, Z, n=3.0):
+        p = super().profile(M, R, X, Z, n=n)
+        T = p.T.copy()
+        T[:, 200] = -5.0  # one bad layer, in the envelope
+        return Profile(r=p.r, m=p.m, rho=p.rho, P=p.P, T=T, beta=p.beta, M=p.M, R=p.R, X=p.X, Z=p.Z)
+
+
+@hookimpl
+def radwalk_profiles():
+    return [Negative()]
+""")
+    row = report_of(str(path)).row("physical")
+    assert not row.passed
+    assert re.match(r"T < 0 at r/R=0\.9[0-9]+, rho=[0-9.e+-]+ g/cm\^3, layer 201 of [0-9]+ from the centre of ",
+                    row.detail), row.detail
+    assert "grid point" not in row.detail
