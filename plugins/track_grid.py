@@ -142,10 +142,18 @@ def hydrogen_of(grid: TrackGrid, Z):
     return 1.0 - (float(rule["Y_p"]) + float(rule["dY_dZ"]) * Z) - Z
 
 
+FIXED_OPACITY = ("it reads every star off a grid of evolved tracks computed with the law at fixed parameter "
+                 "values, one grid per value (about half an hour of CPU each for the default grid's 273 tracks), "
+                 "so a parameter that changes from walker to walker and step to step has no grid")
+"""Why the track-grid stages cannot sample an opacity parameter (the host refuses it before a fit starts:
+:func:`radwalk.host.config.refuse_sampled_opacity`)."""
+
+
 class _GridSource:
     """Finds the track grid of a bound opacity law: the named file, the cache's, or one built now."""
 
     options = _OPTIONS
+    fixed_opacity_params = FIXED_OPACITY
 
     def __init__(self, grid=None, grid_mass=None, grid_z=None, band_stars=None):
         self.grid_file = str(Path(grid).expanduser().resolve()) if grid else None
@@ -188,8 +196,9 @@ class _GridSource:
         """The grid for the bound opacity law (loaded or built once per process)."""
         okey = opacity_key(opacity)
         if okey[0] == "callable":
-            raise ConfigError(f"{self.name} needs one opacity law with fixed parameters (a grid is built for "
-                              "each); hold the opacity parameters fixed")
+            raise ConfigError(f"the {self.name} stages cannot take an opacity law whose parameters vary from "
+                              f"sample to sample: {FIXED_OPACITY}; hold the opacity parameters fixed, or use the "
+                              "'solved' profile and relation")
         key = (okey, self.options_key)
         if key not in _GRIDS:
             kappa = track_opacity(opacity)  # the grid's key is the bound law's; the builder calls it per star

@@ -3,6 +3,7 @@
 from __future__ import annotations
 
 import argparse
+import sys
 from pathlib import Path
 
 from radwalk.errors import ConfigError
@@ -89,9 +90,14 @@ def config_from_args(args, validate: bool = True) -> config_mod.RunConfig:
 def validate_choices(cfg: config_mod.RunConfig):
     """Fails early (one line) on unknown components, options or parameter names."""
     from radwalk.host.components import Observations
+    from radwalk.host.config import refuse_sampled_opacity
+    from radwalk.inference.cost import opacity_sampling_cost
     from radwalk.inference.fit import stages_for
     from radwalk.inference.posterior import Posterior
 
     for op in cfg.opacity_names():
-        stages = stages_for(cfg, op)
+        stages = stages_for(cfg, op)  # refuses an opacity parameter the stages cannot sample
         Posterior(stages, Observations({}, {}), cfg)
+        sampled = refuse_sampled_opacity(cfg, stages)
+        if sampled:  # the stages can vary the law: say what it costs before the fit starts
+            print(f"radwalk: {opacity_sampling_cost(cfg, stages, sampled)}", file=sys.stderr, flush=True)

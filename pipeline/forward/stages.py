@@ -48,6 +48,9 @@ class StageSet:
     relation: object
     likelihood: object
     options: dict = field(default_factory=dict)  # component name -> {option: value}
+    # True when a fit samples an opacity parameter: each value would get a relation grid of its own (10-20 s to
+    # build, never reused), so the relation is solved directly even for one sample (the optimiser's calls).
+    solve_directly: bool = False
 
     @classmethod
     def build(cls, registry: Registry, names: dict | None = None, options: dict | None = None) -> StageSet:
@@ -152,7 +155,7 @@ class StageSet:
         return {"radius": R, "luminosity": L, "teff": teff_from(R, L)}
 
     def _grid(self, values: dict):
-        if not getattr(self.relation, "gridded", False):
+        if self.solve_directly or not getattr(self.relation, "gridded", False):
             return None
         fixed = {}
         for stage in ("opacity", "relation"):
@@ -317,7 +320,7 @@ class StageSet:
         if getattr(self.profile, "sets_radius", False) and prof.L is not None:
             L = np.asarray(prof.L, dtype=float)[:, -1]  # a solved star's own luminosity, whatever the relation said
         tr = transport.compute(prof, opacity, L)
-        _check_kappa(self.opacity.name, tr.fields["kappa"])
+        _check_kappa(self.opacity.name, tr.fields["kappa"], prof)
         return prof, tr
 
     def validity_messages(self, values: dict, profile: Profile | None = None) -> list[str]:
@@ -344,11 +347,18 @@ class StageSet:
 OPACITY_MASS_THRESHOLD = 0.01
 
 
-def _check_kappa(name: str, kappa):
-    bad = ~np.isfinite(kappa) | (kappa <= 0)
+def _check_kappa(name: str, kappa, prof: Profile):
+    """ModelError naming the first layer (rho, T, r/R of which star) where kappa [n, g] is not finite and > 0."""
+    bad = ~np.isfinite(kappa) | ~(kappa > 0)
     if bad.any():
-        i, j = np.argwhere(bad)[0]
+        i, j = (int(v) for v in np.argwhere(bad)[0])
+        value = float(kappa[i, j])
+        shown = "NaN" if np.isnan(value) else f"{value:.4g} cm^2/g"
+        rho, T = float(np.asarray(prof.rho)[i, j]), float(np.asarray(prof.T)[i, j])
+        r_rel = float(np.asarray(prof.r)[i, j] / np.asarray(prof.r)[i, -1])
+        mass = float(np.ravel(prof.M)[i]) / k.M_SUN
         raise ModelError(
-            f"opacity {name!r} returned {kappa[i, j]!r} inside the star (grid point {j}); "
-            "an opacity must be finite and positive"
+            f"opacity {name!r} gave kappa={shown} at rho={rho:.4g} g/cm^3, T={T:.4g} K, r/R={r_rel:.4g} of a "
+            f"{mass:.4g} M_sun star ({int(bad[i].sum())} of its {bad.shape[1]} layers); an opacity must be finite "
+            "and positive in every layer, also outside its stated range: `radwalk check-plugin` checks it"
         )

@@ -17,6 +17,9 @@ Layout (every section optional)::
     lower = 0.3
     upper = 20
 
+    [priors.kappa_0]        # sample a parameter with its declared prior (kind and
+                            # bounds not restated: each key left out is the declared one's)
+
     [sampler]
     walkers = 32
     chunk = 200
@@ -98,12 +101,77 @@ class SamplerConfig:
 
 
 @dataclass(frozen=True)
+class PriorRequest:
+    """A ``[priors.NAME]`` table that leaves out some of kind, bounds, mean and sigma: the rest is the declared prior's.
+
+    ``[priors.kappa_0]`` alone asks to sample kappa_0 with the prior its component declares
+    (:meth:`radwalk.host.params.Param.default_prior`); ``lower = 5`` alone narrows that prior's lower bound;
+    a new ``kind`` without bounds keeps the declared bounds.  Completed by :meth:`complete` once the
+    component is known.
+    """
+
+    name: str
+    kind: str | None = None
+    lower: float | None = None
+    upper: float | None = None
+    mean: float | None = None
+    sigma: float | None = None
+
+    def complete(self, declared: Prior) -> Prior:
+        """The prior asked for: the given values, each missing one taken from ``declared``.
+
+        Raises
+        ------
+        ConfigError
+            Naming the table, what was given and the declared prior, if the result is not a valid prior.
+        """
+        kind = self.kind or declared.kind
+        normal = ("normal", "truncated-normal")
+        # a declared mean and sigma carry over only between normal kinds
+        inherit = kind in normal and declared.kind in normal
+        values = {
+            "lower": declared.lower if self.lower is None else self.lower,
+            "upper": declared.upper if self.upper is None else self.upper,
+            "mean": declared.mean if self.mean is None and inherit else self.mean,
+            "sigma": declared.sigma if self.sigma is None and inherit else self.sigma,
+        }
+        try:
+            return Prior(kind, values["lower"], values["upper"], values["mean"], values["sigma"])
+        except ConfigError as exc:
+            given = ", ".join(f"{k} = {v!r}" for k, v in self.to_dict().items()) or "nothing"
+            raise ConfigError(f"[priors.{self.name}]: {exc} (given: {given}; the rest from the declared prior "
+                              f"{declared.describe()})") from None
+
+    def describe(self) -> str:
+        given = ", ".join(f"{k}={v!r}" for k, v in self.to_dict().items())
+        return f"declared prior{' with ' + given if given else ''}"
+
+    def to_dict(self) -> dict:
+        return {key: getattr(self, key) for key in _PRIOR_KEYS if getattr(self, key) is not None}
+
+
+class PriorTable(dict):
+    """``[priors]``: parameter name -> Prior, or PriorRequest for a table that leaves values to the declared prior.
+
+    ``get(name, declared)`` gives the prior a fit uses: a full Prior as it is, a PriorRequest completed from
+    ``declared`` (the parameter's declared prior), so callers that ask
+    ``config.priors.get(p.name, p.default_prior())`` get a complete Prior either way.
+    """
+
+    def get(self, name, default=None):
+        value = super().get(name, default)
+        if isinstance(value, PriorRequest) and isinstance(default, Prior):
+            return value.complete(default)
+        return value
+
+
+@dataclass(frozen=True)
 class RunConfig:
     """Everything a run needs besides the catalog, validated."""
 
     stages: dict = field(default_factory=dict)  # stage -> name (opacity may be a tuple of names)
     settings: dict = field(default_factory=dict)  # name -> float or str
-    priors: dict = field(default_factory=dict)  # name -> Prior
+    priors: dict = field(default_factory=PriorTable)  # name -> Prior or PriorRequest (see PriorTable)
     sampler: SamplerConfig = field(default_factory=SamplerConfig)
     solar_z: float = Z_SUN
     solar_x: float = X_SUN
@@ -119,6 +187,13 @@ class RunConfig:
         names = {k: v for k, v in self.stages.items() if k != "opacity"}
         names["opacity"] = opacity or self.opacity_names()[0]
         return names
+
+    def prior_for(self, param) -> Prior | None:
+        """The prior a fit gives ``param`` (a :class:`~radwalk.host.params.Param`) if the config asks to sample it:
+        its ``[priors]`` table, completed from the declared prior; None when the config gives it no prior."""
+        if param.name not in self.priors:
+            return None
+        return PriorTable(self.priors).get(param.name, param.default_prior())
 
     def with_changes(self, **kw) -> RunConfig:
         return replace(self, **kw)
@@ -146,6 +221,59 @@ _SECTIONS = {
     "run": ("seed", "plugins"),
 }
 _PRIOR_KEYS = ("kind", "lower", "upper", "mean", "sigma")
+
+
+def sampled_names(config: RunConfig, params) -> list[str]:
+    """Names of ``params`` (Param records) a fit under ``config`` samples: sampled by default or given a prior,
+    and not held at a number under ``[settings]`` without a prior."""
+    out = []
+    for p in params:
+        held = p.name in config.settings and not isinstance(config.settings[p.name], str)
+        if p.name in config.priors or (p.sampled and not held):
+            out.append(p.name)
+    return out
+
+
+def refuse_sampled_opacity(config: RunConfig, stages) -> list[str]:
+    """Refuses, before anything long starts, a sampled opacity parameter that the chosen stages cannot vary.
+
+    A component that builds something per value of the opacity law's parameters (the track grid builds a
+    grid of evolved tracks per value, an hour of CPU each) declares why in an attribute
+    ``fixed_opacity_params`` (text); sampling an opacity parameter with it is refused here.
+
+    Parameters
+    ----------
+    config : RunConfig
+    stages : StageSet
+        The chosen components (anything with ``opacity``, ``profile``, ``relation``, ``likelihood``).
+
+    Returns
+    -------
+    list of str
+        The opacity parameters the fit samples (with stages that can vary them).
+
+    Raises
+    ------
+    ConfigError
+        Naming the parameters, the stage that cannot vary them, why, and what to do instead.
+    """
+    law = stages.opacity
+    sampled = sampled_names(config, law.params)
+    if not sampled:
+        return []
+    for stage in STAGES:
+        comp = getattr(stages, stage)
+        why = getattr(comp, "fixed_opacity_params", None)
+        if comp is law or not why:
+            continue
+        names = ", ".join(sampled)
+        hold = " ".join(f"--set {n}=VALUE" for n in sampled)
+        raise ConfigError(
+            f"cannot sample {names} of opacity {law.name!r} with the {stage} {comp.name!r}: {why}.  Hold "
+            f"{'it' if len(sampled) == 1 else 'them'} fixed ({hold}, or [settings]; no [priors.{sampled[0]}]), or "
+            "fit with stages that solve each star with the sampled law: profile and relation 'solved' (a solved "
+            "star per walker and step: slow), or the textbook 'polytrope' and 'homology'")
+    return sampled
 
 
 def _reject_unknown(where: str, keys, allowed):
@@ -193,21 +321,23 @@ def from_dict(data: dict, base_dir: Path | None = None) -> RunConfig:
         vals = v if isinstance(v, tuple) else (v,)
         if not all(isinstance(x, str) for x in vals):
             raise ConfigError(f"[stages] {k} must name a component (a string), got {v!r}")
-    priors = {}
+    priors = PriorTable()
     for name, spec in data.get("priors", {}).items():
         if not isinstance(spec, dict):
-            raise ConfigError(f"[priors.{name}] must be a table with kind, lower, upper")
+            raise ConfigError(f"[priors.{name}] must be a table (empty for the declared prior, or with kind, "
+                              "lower, upper)")
         _reject_unknown(f"[priors.{name}] ", spec, _PRIOR_KEYS)
-        if "kind" not in spec:
-            raise ConfigError(f"[priors.{name}] needs a kind")
-        if not isinstance(spec["kind"], str):
-            raise ConfigError(f"[priors.{name}] kind must be a string (one of {', '.join(Prior.KINDS)}), "
-                              f"got {spec['kind']!r}")
+        if "kind" in spec and (not isinstance(spec["kind"], str) or spec["kind"] not in Prior.KINDS):
+            raise ConfigError(f"[priors.{name}] kind must be one of {', '.join(Prior.KINDS)}, got {spec['kind']!r}")
         nums = {key: _number(f"[priors.{name}] {key}", spec[key]) for key in ("lower", "upper", "mean", "sigma")
                 if key in spec}
+        needs = ("lower", "upper") + (("mean", "sigma") if spec.get("kind") in ("normal", "truncated-normal") else ())
+        if "kind" not in spec or any(key not in nums for key in needs):
+            # the rest comes from the declared prior, known once the stages are
+            priors[name] = PriorRequest(name, spec.get("kind"), **nums)
+            continue
         try:
-            priors[name] = Prior(spec["kind"], nums.get("lower", float("-inf")), nums.get("upper", float("inf")),
-                                 nums.get("mean"), nums.get("sigma"))
+            priors[name] = Prior(spec["kind"], nums["lower"], nums["upper"], nums.get("mean"), nums.get("sigma"))
         except ConfigError as exc:
             raise ConfigError(f"[priors.{name}]: {exc}") from None
     try:

@@ -87,6 +87,30 @@ def load_module_from_file(path: str | Path):
     return module
 
 
+def hook_components(returned, hook: str, source: str) -> list:
+    """What a provider hook returned, as a list of components; PluginError if it is not a list of instances.
+
+    A hook returns a list (or tuple) of component instances.  Returning the component itself, or its class,
+    is the usual slip; it is named here (plugin, hook and what came back) instead of surfacing as a traceback.
+    """
+    def what(thing) -> str:
+        if isinstance(thing, type):
+            return f"the class {thing.__name__}"
+        return f"a {type(thing).__name__} object" + (f" ({thing.name!r})" if isinstance(getattr(thing, "name", None),
+                                                                                      str) else "")
+
+    if not isinstance(returned, (list, tuple)):
+        name = returned.__name__ if isinstance(returned, type) else type(returned).__name__
+        fix = f"return a list, e.g. [{name}()]"
+        raise PluginError(f"{source}: hook {hook} returned {what(returned)}, not a list of components; {fix}",
+                          plugin=source)
+    for comp in returned:
+        if isinstance(comp, type):
+            raise PluginError(f"{source}: hook {hook} returned {what(comp)} in its list, not an instance; "
+                              f"return [{comp.__name__}()]", plugin=source)
+    return list(returned)
+
+
 class Registry:
     """All known components, by stage and name."""
 
@@ -149,7 +173,7 @@ class Registry:
                     raise PluginError(
                         f"{source}: hook {hook} failed: {type(exc).__name__}: {exc}", plugin=source
                     ) from None
-                for comp in components:
+                for comp in hook_components(components, hook, source):
                     self._add(stage, comp, source)
 
     def _add(self, stage: str, comp, source: str):

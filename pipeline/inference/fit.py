@@ -31,12 +31,13 @@ from radwalk.errors import (
 from radwalk.forward import disk_memo
 from radwalk.forward.quantities import output_unit
 from radwalk.forward.stages import StageSet
-from radwalk.host.config import RunConfig
+from radwalk.host.config import RunConfig, refuse_sampled_opacity
 from radwalk.host.registry import Registry
 from radwalk.inference.derived import band_structures, check_reachable, derive, ppc_pvalue
 from radwalk.inference.posterior import Posterior
 from radwalk.inference.sampler import run_chain
 from radwalk.inference.star import Star, seed_for
+from radwalk.results.chain import describe_chain_file
 from radwalk.results.document import PERCENTILES, PPC_POOR, result_document
 from radwalk.results.files import remove_leftovers, write_json
 from radwalk.results.layout import STAR_SUMMARY, chain_file_name
@@ -71,6 +72,8 @@ def stages_for(config: RunConfig, opacity: str | None = None) -> StageSet:
             if key in {o.name for o in getattr(comp, "options", ())}:
                 opts.setdefault(comp.name, {})[key] = value
     stages = StageSet.build(reg, names, opts)
+    # before any grid is built or any sampling starts; a sampled law is solved directly, not gridded per value
+    stages.solve_directly = bool(refuse_sampled_opacity(config, stages))
     law = stages.opacity.name
     check_opacity_contract(tuple(config.plugins), law, tuple(sorted(opts.get(law, {}).items())))
     return stages
@@ -236,7 +239,7 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
         param_labels=[p.latex or p.name for p in all_params], param_units=[p.unit for p in all_params],
         priors=all_priors, samples=flat, derived=derived, r_rel=r_rel, bands=bands,
         observed=star.user_values(),
-        band_source=None if bands is not None else partial(band_structures, post, flat[idx]),
+        band_source=None if bands is not None else partial(band_structures, post, flat[idx]), derived_ok=ok,
     )
     return summary, products
 
@@ -262,6 +265,7 @@ def fit_laws(star: Star, config: RunConfig, folder: Path | None = None) -> tuple
     if folder is not None:
         for j, op in enumerate(config.opacity_names()):
             part = folder / chain_file_name(op, primary=j == 0, partial=True)
+            describe_chain_file(part, products[op], fits[op], config.seed)  # units, provenance, derived samples
             part.replace(folder / chain_file_name(op, primary=j == 0))
     return summary, products
 

@@ -128,8 +128,43 @@ def write_json(path, obj):
 
 
 def write_table(table, path, format: str | None = None):
-    """Writes an astropy Table atomically; the format follows the file name unless given."""
+    """Writes an astropy Table atomically; the format follows the file name unless given.
+
+    FITS goes through :func:`fits_table_hdu`, so each column's description becomes its ``TCOMMn`` and the
+    meta (``EXTNAME`` among it) header keywords.
+    """
     path = Path(path)
     fmt = format or {".ecsv": "ascii.ecsv", ".fits": "fits", ".csv": "ascii.csv"}.get(path.suffix, "ascii.ecsv")
     with atomic_path(path) as tmp:
-        table.write(tmp, format=fmt, overwrite=True)
+        if fmt == "fits":
+            from astropy.io import fits
+
+            fits.HDUList([fits.PrimaryHDU(), fits_table_hdu(table)]).writeto(tmp, overwrite=True)
+        else:
+            table.write(tmp, format=fmt, overwrite=True)
+
+
+def fits_table_hdu(table):
+    """A binary-table HDU of ``table``: TCOMMn from each column's description, header keywords from the meta.
+
+    A meta value may be ``(value, comment)``; keys are FITS keywords (at most 8 characters).  astropy writes
+    a description only into its own serialized-column comments, which FITS readers other than astropy do not
+    show; ``TCOMMn`` is the FITS convention for a column's description.
+    """
+    from astropy.io import fits
+    from astropy.table import Table
+
+    plain = Table(table, copy=False)
+    plain.meta = {}
+    hdu = fits.table_to_hdu(plain)
+    for key, value in table.meta.items():
+        value, comment = value if isinstance(value, tuple) else (value, "")
+        bare = fits.Card(str(key), value).image.rstrip()
+        if len(bare) <= 80:  # a comment that would not fit on the card is shortened (a long string continues)
+            comment = comment[:max(0, 80 - len(bare) - 3)]
+        hdu.header[str(key)] = (value, comment)
+    for j, name in enumerate(table.colnames, start=1):
+        words = getattr(table[name], "description", None)
+        if words:
+            hdu.header[f"TCOMM{j}"] = str(words).encode("ascii", "backslashreplace").decode("ascii")
+    return hdu

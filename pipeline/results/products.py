@@ -70,6 +70,7 @@ class FitProducts:
     observed: dict  # name -> (value, err) in R_sun, L_sun, K
     band_source: object = None  # callable -> (r_rel, bands, notes): the bands' structures, solved on first use
     band_notes: list = field(default_factory=list)  # validity warnings of those structures
+    derived_ok: np.ndarray | None = None  # [nderived] bool: rows that gave a model star (``derived`` is over those)
 
     def ensure_bands(self) -> None:
         """Solves the profile bands' structures if they were left for the figures (a quick-quantity profile)."""

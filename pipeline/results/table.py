@@ -8,9 +8,15 @@ their errors (``radius_obs``, ``radius_obs_err``, ... in R_sun, L_sun, K;
 ``<name>_p16``, ``<name>_p50``, ``<name>_p84`` and ``<name>_map``; for every
 derived quantity ``<name>_p16``, ``<name>_p50``, ``<name>_p84``; then
 ``converged``, ``acceptance``, ``tau_max``, ``ess_min``, ``steps``,
-``ppc_pvalue``, ``seconds``.  Columns carry astropy units.  A failed star
-has NaN in every numeric column (and ``converged`` false); so has a number
-that summary.json holds as null.
+``ppc_pvalue``, ``seconds``.  Columns carry astropy units and a description
+in words (the ECSV header's ``description``, the FITS header's ``TCOMMn``).  A
+failed star has NaN in every numeric column (and ``converged`` false); so has
+a number that summary.json holds as null.
+
+The table's meta records the run's provenance: ``seed``, ``stages`` (stage ->
+component of the fits, as the stars' documents say) and ``versions``
+(radwalk's, Python's and the libraries'); :func:`fits_safe` puts the same
+into FITS header keywords beside ``EXTNAME = 'SUMMARY'``.
 
 :func:`build_summary_table` consumes its documents one at a time and keeps
 only the flat rows, so a large catalog's table does not hold every star's
@@ -27,7 +33,10 @@ import numpy as np
 from astropy.table import Column, Table
 
 from radwalk import __version__
+from radwalk.forward.quantities import description, quantity
+from radwalk.host.stages import STAGES
 from radwalk.results.document import OBSERVED_UNITS
+from radwalk.results.provenance import package_versions
 
 OBSERVED = tuple(OBSERVED_UNITS.items())
 PERCENTILE_KEYS = ("p16", "p50", "p84")
@@ -36,6 +45,18 @@ TEXT_COLUMNS = ("id", "folder", "status", "reason", "warnings", "opacity", "unco
 WARNING_SEPARATOR = " | "
 
 _NAN = float("nan")
+TEXT_WORDS = {
+    "id": "star identifier, as in the catalog",
+    "folder": "the star's folder under stars/ in the run folder",
+    "status": "ok (converged), not-converged (results from a chain cut at max_steps) or failed",
+    "reason": "why the star failed or did not converge (empty if ok)",
+    "warnings": f"the fit's warnings, joined with '{WARNING_SEPARATOR.strip()}'",
+    "opacity": "opacity law of the fit the other columns give",
+    "unconstrained": "parameters whose posterior is at least half as wide as the prior (the data say little)",
+    "converged": "whether the chain met the convergence test (length over tau and a settled tau)",
+}
+EXTNAME = "SUMMARY"
+STAGE_KEYWORDS = {stage: stage.upper()[:8] for stage in STAGES}  # FITS keywords: at most 8 characters
 
 
 def _unit(text: str | None):
@@ -117,9 +138,14 @@ def build_summary_table(docs: Iterable[dict]) -> Table:
     rows: list[dict] = []
     punits: dict[str, str] = {}
     dunits: dict[str, str] = {}
+    seed, stages = None, {}
     for doc in docs:
         row, pu, du = _flat_row(doc)
         rows.append(row)
+        if seed is None and doc.get("seed") is not None:
+            seed = doc["seed"]
+        if not stages and doc.get("stages"):
+            stages = {str(k): str(v) for k, v in doc["stages"].items()}
         for n, un in pu.items():
             punits.setdefault(n, un)
         for n, un in du.items():
@@ -127,26 +153,28 @@ def build_summary_table(docs: Iterable[dict]) -> Table:
     table = Table()
     for name in TEXT_COLUMNS:
         table.add_column(_text_column(name, [r[name] for r in rows]))
+        table[name].description = TEXT_WORDS[name]
 
     def add(name, unit=None, description=None):
         values = np.array([r.get(name, _NAN) for r in rows], dtype=float)
         table.add_column(Column(values, name=name, unit=_unit(unit), description=description))
 
     for key, unit in OBSERVED:
-        add(f"{key}_obs", unit, f"observed {key}")
-        add(f"{key}_obs_err", unit, f"uncertainty of the observed {key}")
+        add(f"{key}_obs", unit, f"observed {quantity(key).short}")
+        add(f"{key}_obs_err", unit, f"uncertainty of the observed {quantity(key).short}")
     add("feh_obs", None, "observed [Fe/H] (dex)")
     add("feh_obs_err", None, "uncertainty of the observed [Fe/H] (dex)")
     for name, unit in punits.items():
         for key in PERCENTILE_KEYS:
-            add(f"{name}_{key}", unit, f"{key[1:]}th percentile of the posterior of {name}")
-        add(f"{name}_map", unit, f"{name} at the posterior maximum")
+            add(f"{name}_{key}", unit, f"{description(name)}: {key[1:]}th percentile of the posterior")
+        add(f"{name}_map", unit, f"{description(name)} at the posterior maximum")
     for name, unit in dunits.items():
         if f"{name}_p16" in table.colnames:
             continue  # a parameter of the same name already has its columns
         for key in PERCENTILE_KEYS:
-            add(f"{name}_{key}", unit, f"{key[1:]}th percentile of {name} over the posterior samples")
-    table.add_column(Column(np.array([r["converged"] for r in rows], dtype=bool), name="converged"))
+            add(f"{name}_{key}", unit, f"{description(name)}: {key[1:]}th percentile over the posterior samples")
+    table.add_column(Column(np.array([r["converged"] for r in rows], dtype=bool), name="converged",
+                            description=TEXT_WORDS["converged"]))
     add("acceptance", None, "mean acceptance fraction of the walkers")
     add("tau_max", None, "largest integrated autocorrelation time (steps)")
     add("ess_min", None, "smallest effective sample size over the parameters")
@@ -155,6 +183,9 @@ def build_summary_table(docs: Iterable[dict]) -> Table:
     add("seconds", "s", "wall time of the star's fit")
     table.meta["radwalk_version"] = __version__
     table.meta["stars"] = len(rows)
+    table.meta["seed"] = seed
+    table.meta["stages"] = stages
+    table.meta["versions"] = package_versions()
     return table
 
 
@@ -166,5 +197,22 @@ def fits_safe(table: Table) -> Table:
         if col.dtype.kind == "U":
             vals = [str(v).encode("ascii", "backslashreplace").decode("ascii") for v in col]
             out.replace_column(name, _text_column(name, vals))
-    out.meta = {"RADWALK": str(table.meta.get("radwalk_version", __version__)), "NSTARS": len(out)}
+            out[name].description = col.info.description
+    meta = table.meta
+    out.meta = {"EXTNAME": EXTNAME, "RADWALK": (str(meta.get("radwalk_version", __version__)), "radwalk version"),
+                "NSTARS": (len(out), "stars, one a row")}
+    if meta.get("seed") is not None:
+        out.meta["SEED"] = (int(meta["seed"]), "the run's seed")
+    for stage, value in (meta.get("stages") or {}).items():
+        if stage in STAGE_KEYWORDS:
+            out.meta[STAGE_KEYWORDS[stage]] = (_ascii(value), f"{stage} stage of the fits")
+    for name, version in (meta.get("versions") or {}).items():
+        if name != "radwalk":
+            out.meta[f"V_{name.upper()[:6]}"] = (_ascii(version), f"{name} version")
+    if meta.get("catalog_sha256"):
+        out.meta["CATSHA"] = (str(meta["catalog_sha256"])[:64], "sha256 of the catalog file")
     return out
+
+
+def _ascii(text) -> str:
+    return str(text).encode("ascii", "backslashreplace").decode("ascii")

@@ -75,8 +75,8 @@ def test_built_in_opacity_laws_pass(registry, name):
     report = check_component(registry.entries["opacity"][name], registry=registry)
     assert report.passed, report.format_table()
     checks = [r.check for r in report.rows]
-    for check in ("params", "validity", "call", "shape", "finite", "positive", "broadcasting",
-                  "warnings", "smoothness", "speed"):
+    for check in ("params", "signature", "validity", "call", "shape", "finite", "positive", "broadcasting",
+                  "warnings", "smoothness", "units", "star", "speed"):
         assert check in checks
     assert 0 < report.seconds_per_million < 10
 

@@ -16,15 +16,21 @@ A failed row names the first bad point and the value found there.
 Every component
     ``configure`` (only when options are given), ``declarations`` (name and
     description), ``params`` (every Param with a unit, finite bounds, a
-    default inside them and a description), ``options`` (only when it
-    declares some), ``validity`` (a Validity whose stated ranges make sense).
+    default inside them and a description), ``signature`` (the stage
+    method's keyword arguments, and the names it reads from ``**params``,
+    are the declared parameters: :mod:`.signature`), ``options`` (only when
+    it declares some), ``validity`` (a Validity whose stated ranges make sense).
 Opacity laws, on a grid of log rho x log T over the law's declared validity (:mod:`.opacity`)
     ``call``, ``shape`` (``kappa(rho [n, g], T [n, g], X [n, 1], Z [n, 1],
     **params [n, 1])`` runs and returns [n, g]), ``finite``, ``positive``,
     ``broadcasting`` (row-by-row calls with scalar X, Z and a scalar call
     agree with the [n, g] call), ``warnings`` (none inside the law's own
     range), ``smoothness`` (no factor above :data:`JUMP_FACTOR` between grid
-    neighbours), ``speed`` (at most :data:`SLOW_LIMIT` s per million points).
+    neighbours), ``units`` (where the gas is hot, ionised and not degenerate,
+    no value far below the electron-scattering floor 0.2(1+X) cm^2/g: a law
+    in m^2/kg is 10 times too low), ``star`` (finite and > 0 in every layer
+    of solved stars of the default model, outside the stated range too:
+    :mod:`.layers`), ``speed`` (at most :data:`SLOW_LIMIT` s per million points).
 Profiles, for three masses over the stated range (:mod:`.profile`)
     ``call``, ``shape`` ([n, ngrid]), ``finite``, ``physical`` (r and m rise
     to R and M; rho, P, T >= 0; 0 < beta <= 1), ``broadcasting``, ``warnings``,
@@ -58,6 +64,7 @@ from radwalk.host.contracts.likelihood import (
     check_likelihood_warnings,
 )
 from radwalk.host.contracts.opacity import (
+    FLOOR_FRACTION,
     JUMP_FACTOR,
     LOOP_RTOL,
     MAX_GRID_POINTS,
@@ -71,6 +78,8 @@ from radwalk.host.contracts.opacity import (
     check_opacity_shape,
     check_opacity_smoothness,
     check_opacity_speed,
+    check_opacity_star,
+    check_opacity_units,
     check_opacity_warnings,
 )
 from radwalk.host.contracts.outcome import CheckReport, CheckRow
@@ -93,6 +102,7 @@ from radwalk.host.contracts.relation import (
     check_relation_support,
     check_relation_warnings,
 )
+from radwalk.host.contracts.signature import check_signature
 from radwalk.host.contracts.subject import Check, Subject
 from radwalk.host.contracts.targets import check_component, check_target, resolve_target
 
@@ -103,9 +113,10 @@ __all__ = [
     "CheckReport", "CheckRow", "ContractCase", "ContractFailure",
     # the checks, grouped per stage
     "CHECKS", "checks_for", "Check", "Subject",
-    "check_configure", "check_declarations", "check_params", "check_options", "check_validity",
+    "check_configure", "check_declarations", "check_params", "check_signature", "check_options", "check_validity",
     "check_opacity_call", "check_opacity_shape", "check_opacity_finite", "check_opacity_positive",
-    "check_opacity_broadcasting", "check_opacity_warnings", "check_opacity_smoothness", "check_opacity_speed",
+    "check_opacity_broadcasting", "check_opacity_warnings", "check_opacity_smoothness", "check_opacity_units",
+    "check_opacity_star", "check_opacity_speed",
     "check_opacity_inputs", "check_profile_inputs", "check_relation_inputs", "check_likelihood_inputs",
     "check_profile_call", "check_profile_shape", "check_profile_finite", "check_profile_physical",
     "check_profile_broadcasting", "check_profile_warnings", "check_profile_support",
@@ -115,4 +126,5 @@ __all__ = [
     "check_likelihood_warnings",
     # limits and ranges
     "DEFAULT_RANGES", "JUMP_FACTOR", "SLOW_LIMIT", "MAX_STEP_DEX", "MAX_GRID_POINTS", "LOOP_RTOL",
+    "FLOOR_FRACTION",
 ]

@@ -6,6 +6,7 @@ import math
 
 from radwalk.host.contracts.inputs import DEFAULT_RANGES, UNITS
 from radwalk.host.contracts.outcome import CheckRow
+from radwalk.host.contracts.signature import check_signature
 from radwalk.host.contracts.subject import Check, Subject
 from radwalk.host.params import Option, Param, Validity
 from radwalk.host.stages import BY_NAME
@@ -125,6 +126,7 @@ CHECKS = (
     Check("configure", check_configure, applies=lambda s: bool(s.options)),
     Check("declarations", check_declarations),
     Check("params", check_params),
+    Check("signature", check_signature),
     Check("options", check_options, applies=_has_options),
     Check("validity", check_validity),
 )

@@ -13,7 +13,9 @@ import math
 
 import numpy as np
 
+from radwalk import constants as k
 from radwalk.host.contracts.inputs import checked_range, compositions, default_params, fmt_point
+from radwalk.host.contracts.layers import star_row
 from radwalk.host.contracts.outcome import CheckRow
 from radwalk.host.contracts.subject import Check, Subject, inputs_row, time_per_million, warnings_row
 
@@ -30,6 +32,44 @@ JUMP_FACTOR = 10.0
 # 12 800 points, so at the limit the opacity alone costs 0.13 s a step.
 SLOW_LIMIT = 10.0
 LOOP_RTOL = 1e-12  # row-by-row calls must agree to rounding
+
+# The electron-scattering floor of the ``units`` check.  A fully ionised gas scatters photons on its free
+# electrons with the Thomson cross-section: kappa_es = sigma_T / (2 m_u) (1 + X) = 0.20 (1 + X) cm^2/g
+# (Kippenhahn, Weigert & Weiss, Stellar Structure and Evolution, ch. 17.2), and a Rosseland mean of
+# scattering plus absorption is never below the scattering alone.  The floor holds where
+#  * hydrogen and helium are fully ionised: T >= FLOOR_T_MIN (helium's second ionisation, 54.4 eV, is
+#    complete by ~1e5 K at stellar densities; 1e6 K leaves a factor 10 of margin: common practice, no source);
+#  * the photons are soft: T <= FLOOR_T_MAX, where the Klein-Nishina cross-section is below Thomson's by about
+#    2 h nu / (m_e c^2), 13 % for the Rosseland-weighted photon energy ~4 kT (from memory);
+#  * the electrons are not degenerate (degeneracy blocks scattering into occupied states): rho at most
+#    FLOOR_DEGENERACY of the density where the electrons' Fermi energy equals kT (:func:`degenerate_density`).
+# There a real opacity is at least ~0.7 of the floor; a law in m^2/kg instead of cm^2/g is 0.1 of it.
+FLOOR_T_MIN = 1e6  # K
+FLOOR_T_MAX = 1e8  # K
+FLOOR_DEGENERACY = 0.1
+FLOOR_FRACTION = 0.5  # the check fails below this fraction of the floor ...
+# ... where the law is flat like scattering: |d ln kappa / d ln T| and |d ln kappa / d ln rho| below this.  A law
+# of absorption alone (Kramers: slopes -3.5 and 1) falls below the floor by orders of magnitude at high T; that
+# is a missing scattering term, not a unit, and is reported without failing.
+FLOOR_FLAT_SLOPE = 0.5
+
+
+def electron_scattering_floor(X):
+    """Thomson opacity of a fully ionised gas, sigma_T (1 + X) / (2 m_u), cm^2/g (0.200 (1 + X)).
+
+    Kippenhahn, Weigert & Weiss, Stellar Structure and Evolution, ch. 17.2.
+    """
+    return k.SIGMA_T * (1.0 + np.asarray(X, dtype=float)) / (2.0 * k.M_U)
+
+
+def degenerate_density(T, X):
+    """Density (g/cm^3) at which the free electrons' Fermi energy equals kT, the onset of degeneracy.
+
+    n_e = (8 pi / 3) (2 m_e k T)^(3/2) / h^3 (a full Fermi sphere of momentum p_F with p_F^2 / 2 m_e = kT),
+    rho = n_e mu_e m_u with mu_e = 2 / (1 + X) for a fully ionised gas.
+    """
+    n_e = 8.0 * math.pi / 3.0 * (2.0 * k.M_E * k.K_B * np.asarray(T, dtype=float)) ** 1.5 / k.H_PLANCK**3
+    return n_e * 2.0 / (1.0 + np.asarray(X, dtype=float)) * k.M_U
 
 
 class _Grid:
@@ -242,6 +282,76 @@ def check_opacity_smoothness(subject) -> CheckRow | None:
                     f"kappa={out[i, j2]:.6g}; largest ratio anywhere {10 ** largest:.3g}")
 
 
+def check_opacity_units(subject) -> CheckRow | None:
+    """Where the gas is hot, ionised and not degenerate, kappa is not far below electron scattering, 0.2(1+X) cm^2/g.
+
+    A law written in m^2/kg instead of cm^2/g is 10 times too low and fails here (``FLOOR_FRACTION`` of the
+    floor).  Points are those of the grid with ``FLOOR_T_MIN`` <= T <= ``FLOOR_T_MAX`` and rho at most
+    ``FLOOR_DEGENERACY`` of the degenerate density; a law whose validity holds none passes unchecked.
+    """
+    s = Subject.of(subject)
+    out = _values(s)
+    if out is None:
+        return None
+    g = _grid(s)
+    floor = electron_scattering_floor(g.X)  # [n, 1]
+    hot = ((g.T >= FLOOR_T_MIN) & (g.T <= FLOOR_T_MAX) & (g.R <= FLOOR_DEGENERACY * degenerate_density(g.T, g.X))
+           & np.isfinite(out))
+    where = (f"{FLOOR_T_MIN:g} <= T <= {FLOOR_T_MAX:g} K, non-degenerate")
+    if not hot.any():
+        return CheckRow("units", True, f"not checked: the validity range has no fully ionised point ({where})")
+    with np.errstate(divide="ignore", invalid="ignore"):
+        ratio = np.where(hot, out / floor, np.inf)
+    i, j = np.unravel_index(int(np.argmin(ratio)), ratio.shape)
+    lowest = float(ratio[i, j])
+    if lowest >= FLOOR_FRACTION:
+        return CheckRow("units", True, f"kappa >= {lowest:.3g} x the electron-scattering floor 0.2(1+X) cm^2/g at "
+                                       f"all {int(hot.sum())} fully ionised points ({where})")
+    low = int((hot & (ratio < FLOOR_FRACTION)).sum())
+    slope_T, slope_rho = _log_slopes(g, out, i, j)
+    if max(abs(slope_T), abs(slope_rho)) >= FLOOR_FLAT_SLOPE:
+        return CheckRow("units", True,
+                        f"not judged: kappa falls to {lowest:.3g} x the electron-scattering floor 0.2(1+X) cm^2/g "
+                        f"at {g.point(i, j)}, where it runs as T^{slope_T:.2g} rho^{slope_rho:.2g}: absorption "
+                        "without electron scattering, not a unit; a fit takes the law as the whole opacity")
+    return CheckRow("units", False,
+                    f"kappa={out[i, j]:.4g} cm^2/g at {g.point(i, j)} is {lowest:.3g} x the electron-scattering "
+                    f"floor 0.2(1+X) = {float(floor[i, 0]):.4g} cm^2/g of a fully ionised gas (Thomson scattering; "
+                    f"Kippenhahn, Weigert & Weiss ch. 17), below which no opacity falls there; {low} of "
+                    f"{int(hot.sum())} such points are below {FLOOR_FRACTION:g} x the floor: check the units "
+                    f"(kappa in cm^2/g; 1 m^2/kg = 10 cm^2/g)")
+
+
+def _log_slopes(g: _Grid, out, i: int, j: int) -> tuple[float, float]:
+    """d ln kappa / d ln T and d ln kappa / d ln rho at grid point (i, j), from its neighbours (0 on a 1-point axis)."""
+    with np.errstate(divide="ignore", invalid="ignore"):
+        cube = np.log(np.where(out > 0, out, np.nan)).reshape(g.n, g.rho_axis.size, g.T_axis.size)[i]
+    a, b = np.unravel_index(j, cube.shape)
+    slopes = []
+    for axis, values, at in ((1, g.T_axis, b), (0, g.rho_axis, a)):
+        if values.size < 2:
+            slopes.append(0.0)
+            continue
+        lo, hi = max(at - 1, 0), min(at + 1, values.size - 1)
+        ends = (cube[a, lo], cube[a, hi]) if axis == 1 else (cube[lo, b], cube[hi, b])
+        slope = (ends[1] - ends[0]) / math.log(values[hi] / values[lo])
+        slopes.append(float(slope) if np.isfinite(slope) else 0.0)
+    return slopes[0], slopes[1]
+
+
+def check_opacity_star(subject) -> CheckRow | None:
+    """kappa is finite and > 0 in every layer of stars of the default model, inside the stated range or not.
+
+    The stars are solved zero-age stars of the default profile with the default law, spread over the
+    profile's mass range (:mod:`.layers`); a fit evaluates the law in all their layers, so a law NaN or
+    negative in a cool envelope outside its stated range fails here, naming rho, T and r/R.
+    """
+    s = Subject.of(subject)
+    if s.component is None or not _call(s)[0]:
+        return None
+    return star_row(s)
+
+
 def check_opacity_speed(subject) -> CheckRow | None:
     """The grid call costs at most ``SLOW_LIMIT`` seconds per million points."""
     s = Subject.of(subject)
@@ -273,6 +383,8 @@ CHECKS = (
     Check("broadcasting", check_opacity_broadcasting),
     Check("warnings", check_opacity_warnings),
     Check("smoothness", check_opacity_smoothness),
+    Check("units", check_opacity_units),
+    Check("star", check_opacity_star),
     Check("speed", check_opacity_speed),
     Check("inputs", check_opacity_inputs),
 )

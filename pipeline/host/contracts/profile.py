@@ -113,6 +113,20 @@ def check_profile_shape(subject) -> CheckRow | None:
     return CheckRow("shape", False, f"array shapes {shapes}; expected [{n}, ngrid] for all")
 
 
+def _layer(fields: dict, i: int, j: int, judged: str = "") -> str:
+    """Where layer j of star i lies, in words: its r/R (and rho, T where finite and not the ``judged`` field),
+    and which layer of how many."""
+    r, g = np.asarray(fields["r"][i], dtype=float), fields["r"].shape[1]
+    parts = []
+    if np.isfinite(r[j]) and np.isfinite(r[-1]) and r[-1] > 0:
+        parts.append(f"r/R={r[j] / r[-1]:.4g}")
+    for key, unit in (("rho", "g/cm^3"), ("T", "K")):
+        v = float(fields[key][i, j])
+        if np.isfinite(v) and key != judged:
+            parts.append(f"{key}={v:.4g} {unit}")
+    return ", ".join(parts + [f"layer {int(j) + 1} of {g} from the centre"])
+
+
 def check_profile_finite(subject) -> CheckRow | None:
     """r, m, rho, P, T, beta are finite everywhere."""
     s = Subject.of(subject)
@@ -123,7 +137,8 @@ def check_profile_finite(subject) -> CheckRow | None:
     if not bad:
         return CheckRow("finite", True, "r, m, rho, P, T, beta all finite")
     f, (i, j) = bad[0]
-    return CheckRow("finite", False, f"{f} not finite at grid point {j} of {_stars(s).label(i)}: {fields[f][i, j]}")
+    return CheckRow("finite", False, f"{f} not finite at {_layer(fields, i, j, f)} of {_stars(s).label(i)}: "
+                                     f"{float(fields[f][i, j])}")
 
 
 def check_profile_physical(subject) -> CheckRow | None:
@@ -150,11 +165,11 @@ def check_profile_physical(subject) -> CheckRow | None:
     for f in ("rho", "P", "T"):
         if np.any(fields[f] < 0):
             i, j = np.argwhere(fields[f] < 0)[0]
-            problems.append(f"{f} < 0 at grid point {j} of {st.label(i)}: {fields[f][i, j]:.6g}")
+            problems.append(f"{f} < 0 at {_layer(fields, i, j, f)} of {st.label(i)}: {fields[f][i, j]:.6g}")
     beta = fields["beta"]
     if np.any((beta <= 0) | (beta > 1)):
         i, j = np.argwhere((beta <= 0) | (beta > 1))[0]
-        problems.append(f"beta outside (0, 1] at grid point {j} of {st.label(i)}: {beta[i, j]:.6g}")
+        problems.append(f"beta outside (0, 1] at {_layer(fields, i, j)} of {st.label(i)}: {beta[i, j]:.6g}")
     return CheckRow("physical", not problems, problems[0] if problems else
                     "r and m rise from the centre to R and M; rho, P, T >= 0; 0 < beta <= 1")
 

@@ -10,7 +10,7 @@ from radwalk.errors import ConfigError, PluginError, RadwalkError
 from radwalk.host.contracts.checks import checks_for
 from radwalk.host.contracts.outcome import CheckReport
 from radwalk.host.contracts.subject import Subject
-from radwalk.host.registry import Entry, Registry, suggest
+from radwalk.host.registry import Entry, Registry, hook_components, suggest
 from radwalk.host.stages import HOOKS
 
 
@@ -62,7 +62,8 @@ def module_entries(module, *, entry_points: bool = True) -> tuple[Registry, list
     for stage, hook in HOOKS.items():
         for impl in getattr(registry.pm.hook, hook).get_hookimpls():
             if impl.plugin is module:
-                entries += [registry.entries[stage][c.name] for c in impl.function() or []]
+                comps = hook_components(impl.function() or [], hook, f"module {module.__name__}")
+                entries += [registry.entries[stage][c.name] for c in comps]
     if not entries:
         raise PluginError(f"module {module.__name__} provides no components: none of its @hookimpl radwalk_* "
                           f"hooks returned any", plugin=module.__name__)
