@@ -1,5 +1,7 @@
 """Package layout: the folder pipeline/ installs as the import package ``radwalk`` and plugins/ as
 ``radwalk.plugins``.  Subpackages are discovered, so a new one can never be left out of a wheel.
+The top-level demo_catalog/ folder installs as ``radwalk.data.demo_catalog`` (its tables, config and
+README as package data), so ``radwalk demo`` finds it in a wheel as in a clone.
 Everything else is in pyproject.toml."""
 
 from setuptools import find_packages, setup
@@ -10,6 +12,6 @@ def _under(prefix: str, folder: str) -> list[str]:
 
 
 setup(
-    packages=_under("radwalk", "pipeline") + _under("radwalk.plugins", "plugins"),
-    package_dir={"radwalk": "pipeline", "radwalk.plugins": "plugins"},
+    packages=_under("radwalk", "pipeline") + _under("radwalk.plugins", "plugins") + ["radwalk.data.demo_catalog"],
+    package_dir={"radwalk": "pipeline", "radwalk.plugins": "plugins", "radwalk.data.demo_catalog": "demo_catalog"},
 )

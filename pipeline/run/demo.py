@@ -1,8 +1,9 @@
-"""The demo: an invented catalog, its true parameters and its config (demo_catalog/ beside the package),
+"""The demo: an invented catalog, its true parameters and its config (package data, or demo_catalog/ in a clone),
 and how often a run recovers the truths."""
 
 from __future__ import annotations
 
+import importlib.resources
 import math
 from pathlib import Path
 
@@ -12,18 +13,29 @@ from radwalk.results.layout import CHAIN_FILE, STARS_DIR
 from radwalk.run.catalog import CatalogEntry
 from radwalk.run.state import summary_docs
 
-# The demo: catalog, truths and config in demo_catalog/ beside the package.
-DEMO_DIR = Path(__file__).resolve().parents[2] / "demo_catalog"
+# The demo: catalog, truths and config.  A wheel carries them as package data in radwalk/data/demo_catalog
+# (setup.py maps the top-level demo_catalog/ folder there); a clone or an editable install reads that
+# folder itself, beside the package folder.
+DEMO_FILES = {"catalog": "demo_stars.ecsv", "truths": "truths.ecsv", "config": "demo.toml"}
+SOURCE_DEMO_DIR = Path(__file__).resolve().parents[2] / "demo_catalog"
+
+
+def demo_dir() -> Path:
+    """The folder holding the demo's files: the installed package data, else the clone's demo_catalog/."""
+    shipped = importlib.resources.files("radwalk") / "data" / "demo_catalog"
+    if isinstance(shipped, Path) and shipped.is_dir():  # pip installs wheels unpacked, so this is a real folder
+        return shipped
+    return SOURCE_DEMO_DIR
 
 
 def demo_paths() -> dict:
-    """The demo's catalog, truths and config (CatalogError when they are not beside the package)."""
-    paths = {"catalog": DEMO_DIR / "demo_stars.ecsv", "truths": DEMO_DIR / "truths.ecsv",
-             "config": DEMO_DIR / "demo.toml"}
+    """The demo's catalog, truths and config (CatalogError when they are not installed)."""
+    folder = demo_dir()
+    paths = {key: folder / name for key, name in DEMO_FILES.items()}
     missing = [str(p) for p in paths.values() if not p.is_file()]
     if missing:
-        raise CatalogError(f"the demo catalog is not installed here (missing {', '.join(missing)}); run the demo "
-                           "from a clone of the project (pip install -e .)")
+        raise CatalogError(f"the demo catalog is not installed here (missing {', '.join(missing)}); reinstall "
+                           "radwalk (pip install radwalk, or pip install -e . in a clone)")
     return paths
 
 

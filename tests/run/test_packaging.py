@@ -1,0 +1,67 @@
+"""Packaging: what a wheel carries, and radwalk installed from that wheel alone (not from the clone)."""
+
+from __future__ import annotations
+
+import shutil
+import subprocess
+import sys
+import zipfile
+from pathlib import Path
+
+import pytest
+
+ROOT = Path(__file__).resolve().parents[2]
+DEMO_FILES = ("demo_stars.ecsv", "truths.ecsv", "demo.toml")
+# What a wheel is built from: everything but the local venv, caches and build leftovers (a stale build/ folder
+# would leak removed modules into the wheel).
+_NOT_SOURCE = shutil.ignore_patterns(".venv", ".git", ".cache", "build", "*.egg-info", "__pycache__",
+                                     ".pytest_cache", ".ruff_cache", "radwalk-demo", ".grid-new")
+
+
+@pytest.fixture(scope="module")
+def wheel(tmp_path_factory) -> Path:
+    """A wheel built by pip from a copy of the source tree (the build backend comes from the package index)."""
+    src = tmp_path_factory.mktemp("src") / "radwalk"
+    shutil.copytree(ROOT, src, ignore=_NOT_SOURCE)
+    out = tmp_path_factory.mktemp("wheel")
+    subprocess.run([sys.executable, "-m", "pip", "wheel", "--quiet", "--no-deps", str(src), "-w", str(out)],
+                   check=True, capture_output=True, text=True)
+    (found,) = out.glob("radwalk-*.whl")
+    return found
+
+
+@pytest.mark.subprocess
+def test_wheel_carries_the_demo_catalog(wheel):
+    names = set(zipfile.ZipFile(wheel).namelist())
+    for name in DEMO_FILES + ("README.md",):
+        assert f"radwalk/data/demo_catalog/{name}" in names
+    # beside the other package data the installed package needs
+    assert any(n.startswith("radwalk/data/grids/trackgrid-") and n.endswith(".npz") for n in names)
+    assert any(n.startswith("radwalk/report/templates/") for n in names)
+
+
+@pytest.mark.slow
+@pytest.mark.subprocess
+def test_demo_runs_from_a_wheel_in_a_fresh_venv(wheel, tmp_path):
+    """A fresh venv with the wheel and its dependencies from the package index (a few minutes)."""
+    venv = tmp_path / "venv"
+    subprocess.run([sys.executable, "-m", "venv", str(venv)], check=True)
+    py = venv / "bin" / "python"
+    subprocess.run([str(py), "-m", "pip", "install", "--quiet", str(wheel)], check=True, capture_output=True,
+                   text=True)
+    # run outside the clone, so nothing can be imported or read from the source tree
+    where = subprocess.run([str(py), "-c", "import radwalk.run.demo as d, json; "
+                            "print(json.dumps({k: str(v) for k, v in d.demo_paths().items()}))"],
+                           cwd=tmp_path, check=True, capture_output=True, text=True)
+    import json
+
+    paths = {k: Path(v) for k, v in json.loads(where.stdout).items()}
+    site = venv / "lib"
+    for key, name in zip(("catalog", "truths", "config"), DEMO_FILES):
+        assert paths[key].name == name and paths[key].is_file()
+        assert site in paths[key].parents  # the installed copy, not the clone's demo_catalog/
+        assert paths[key].read_bytes() == (ROOT / "demo_catalog" / name).read_bytes()
+    helped = subprocess.run([str(venv / "bin" / "radwalk"), "demo", "--help"], cwd=tmp_path,
+                            capture_output=True, text=True)
+    assert helped.returncode == 0, helped.stderr
+    assert "demo" in helped.stdout
