@@ -7,7 +7,7 @@ solved once on a regular grid in log10 M, X and log10 Z, for each
 combination of relation, opacity law and their (fixed) parameters, and
 trilinearly interpolated in log R and log L (measured error at most 0.25 % in
 R and 0.35 % in L over 0.3-40 M_sun; the Z axis dominates it).  Grids are cached in memory and
-on disk (``$RADWALK_CACHE`` or ``~/.cache/radwalk``), keyed by the
+on disk (``$RADWALK_CACHE``, else the platform's cache folder: :func:`cache_dir`), keyed by the
 components, their settings and the source code they run.
 
 Points outside the grid, or runs in which a relation or opacity parameter is
@@ -24,6 +24,7 @@ import os
 from pathlib import Path
 
 import numpy as np
+import platformdirs
 
 from radwalk import constants as k
 from radwalk.physics import lane_emden, nuclear
@@ -42,7 +43,20 @@ def _axis(spec):
 
 
 def cache_dir() -> Path:
-    return Path(os.environ.get("RADWALK_CACHE", Path.home() / ".cache" / "radwalk"))
+    """The folder of computed grids and memos: ``$RADWALK_CACHE`` when set, else the platform's user cache folder.
+
+    The platform's folder comes from platformdirs: ``$XDG_CACHE_HOME/radwalk`` (``~/.cache/radwalk``) on Linux,
+    ``~/Library/Caches/radwalk`` on macOS, ``%LOCALAPPDATA%\\radwalk\\Cache`` on Windows.
+
+    Returns
+    -------
+    Path
+        The folder; it is not created here (the writers create it when they first store something).
+    """
+    override = os.environ.get("RADWALK_CACHE")
+    if override:
+        return Path(override)
+    return Path(platformdirs.user_cache_dir("radwalk", appauthor=False))
 
 
 def _source_digest(*objs) -> str:

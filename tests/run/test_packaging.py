@@ -65,3 +65,19 @@ def test_demo_runs_from_a_wheel_in_a_fresh_venv(wheel, tmp_path):
                             capture_output=True, text=True)
     assert helped.returncode == 0, helped.stderr
     assert "demo" in helped.stdout
+
+
+def test_cache_folder_follows_the_platform(monkeypatch, tmp_path):
+    """Linux: $XDG_CACHE_HOME, else ~/.cache (XDG Base Directory Specification); $RADWALK_CACHE wins over both."""
+    from radwalk.forward.grid import cache_dir
+
+    if not sys.platform.startswith("linux"):
+        pytest.skip("the expected folders below are Linux's")
+    monkeypatch.delenv("RADWALK_CACHE", raising=False)
+    monkeypatch.setenv("XDG_CACHE_HOME", str(tmp_path / "xdg"))
+    assert cache_dir() == tmp_path / "xdg" / "radwalk"
+    monkeypatch.delenv("XDG_CACHE_HOME")
+    monkeypatch.setenv("HOME", str(tmp_path / "home"))
+    assert cache_dir() == tmp_path / "home" / ".cache" / "radwalk"
+    monkeypatch.setenv("RADWALK_CACHE", str(tmp_path / "mine"))
+    assert cache_dir() == tmp_path / "mine"
