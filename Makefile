@@ -1,5 +1,6 @@
 # The two commands a user needs: `make demo` and `make test`.
-# Each creates .venv and installs the project into it when missing.
+# Each creates .venv and installs the project into it when missing, with the extras the tests use
+# (test: pytest and ruff; dask: the Dask executor's tests run a real cluster on 127.0.0.1).
 PY ?= python3
 VENV := .venv
 BIN := $(VENV)/bin
@@ -13,7 +14,7 @@ export MPLBACKEND := Agg
 $(STAMP): pyproject.toml
 	test -x $(BIN)/python || $(PY) -m venv $(VENV)
 	$(BIN)/python -m pip install --quiet --upgrade pip
-	$(BIN)/python -m pip install --quiet -e '.[test]'
+	$(BIN)/python -m pip install --quiet -e '.[test,dask]'
 	touch $(STAMP)
 
 demo: $(STAMP)

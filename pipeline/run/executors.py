@@ -43,6 +43,24 @@ NO_WORKERS_GRACE_S = 120.0
 _POLL_S = 1.0  # how often a waiting run asks the scheduler how many workers it has
 
 
+DASK_EXTRA = "radwalk[dask]"
+
+
+def require_dask():
+    """Imports ``distributed``, or says which extra to install.
+
+    Raises
+    ------
+    ConfigError
+        When Dask is not installed (it is an optional extra) or cannot be imported.
+    """
+    try:
+        import distributed  # noqa: F401
+    except ImportError as exc:
+        raise ConfigError(f"--executor dask needs Dask, an optional extra that is not installed here: "
+                          f"pip install '{DASK_EXTRA}' (import failed: {exc})") from None
+
+
 def _upload_name(sha: str) -> str:
     return f"radwalk_plugin_{sha[:20]}.py"
 
@@ -179,6 +197,7 @@ def local_cluster(workers: int):
     8787 by default; here it binds a free loopback port and the dashboard is off.
     One thread per worker: parallelism is over stars, in processes.
     """
+    require_dask()
     from distributed import LocalCluster
 
     return LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
@@ -267,6 +286,7 @@ def make_executor(kind: str, workers: int, scheduler: str | None, config: RunCon
             raise ConfigError("--scheduler needs --executor dask")
         return _LocalExecutor(workers)
     if kind == "dask":
+        require_dask()
         return _DaskExecutor(workers, scheduler, config, hashes)
     raise ConfigError(f"unknown executor {kind!r}; choose local or dask")
 
@@ -287,7 +307,13 @@ def dask_tracks(scheduler: str | None = None):
         ``runner(fn, tasks, workers)`` yielding ``(key, fn(*args))`` as tracks
         finish.  The opacity law travels to the workers by pickle, so it must
         be importable there (a module-level function or a bound law).
+
+    Raises
+    ------
+    ConfigError
+        When Dask is not installed (:func:`require_dask`).
     """
+    require_dask()
 
     def runner(fn, tasks, workers):
         from distributed import Client, as_completed

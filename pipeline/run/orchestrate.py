@@ -62,7 +62,7 @@ from radwalk.results.layout import (
     star_folder,
 )
 from radwalk.run.catalog import Catalog, CatalogEntry, read_catalog
-from radwalk.run.executors import make_executor
+from radwalk.run.executors import make_executor, require_dask
 from radwalk.run.lock import folder_lock
 from radwalk.run.star_figures import needs_figures
 from radwalk.run.state import check_state, load_done, new_state, now, plugin_hashes, prepare_output, summary_docs
@@ -234,6 +234,8 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
         raise ConfigError(f"unknown executor {executor!r}; choose local or dask")
     if scheduler and executor != "dask":
         raise ConfigError("--scheduler needs --executor dask")
+    if executor == "dask":
+        require_dask()  # an optional extra: say so before any output folder is made
     folders = {}
     for e in catalog:
         name = safe_folder_name(e.id)

@@ -65,6 +65,14 @@ def test_demo_runs_from_a_wheel_in_a_fresh_venv(wheel, tmp_path):
                             capture_output=True, text=True)
     assert helped.returncode == 0, helped.stderr
     assert "demo" in helped.stdout
+    # the wheel's own dependencies leave Dask out: it is an extra, and asking for it says which
+    assert subprocess.run([str(py), "-c", "import distributed"], capture_output=True).returncode != 0
+    refused = subprocess.run([str(venv / "bin" / "radwalk"), "run", str(paths["catalog"]), "--out",
+                              str(tmp_path / "out"), "--executor", "dask"], cwd=tmp_path, capture_output=True,
+                             text=True)
+    assert refused.returncode == 2
+    assert "radwalk[dask]" in refused.stderr
+    assert not (tmp_path / "out").exists()
 
 
 def test_cache_folder_follows_the_platform(monkeypatch, tmp_path):
@@ -81,3 +89,17 @@ def test_cache_folder_follows_the_platform(monkeypatch, tmp_path):
     assert cache_dir() == tmp_path / "home" / ".cache" / "radwalk"
     monkeypatch.setenv("RADWALK_CACHE", str(tmp_path / "mine"))
     assert cache_dir() == tmp_path / "mine"
+
+
+@pytest.mark.subprocess
+def test_dask_executor_without_dask_names_the_extra(tmp_path):
+    """Dask made unimportable in a child process (None in sys.modules is Python's documented import block); the
+    fresh-venv test above checks the same with Dask really absent."""
+    code = ("import sys; sys.modules['distributed'] = None\n"
+            "from radwalk.cli.main import main\n"
+            f"sys.exit(main(['run', {str(ROOT / 'demo_catalog' / 'demo_stars.ecsv')!r}, '--out', "
+            f"{str(tmp_path / 'out')!r}, '--executor', 'dask']))")
+    done = subprocess.run([sys.executable, "-c", code], cwd=tmp_path, capture_output=True, text=True)
+    assert done.returncode == 2, done.stderr
+    assert "pip install 'radwalk[dask]'" in done.stderr
+    assert not (tmp_path / "out").exists()  # refused before any output folder is made
