@@ -50,6 +50,8 @@ import sys
 from dataclasses import asdict, dataclass, field, fields, replace
 from pathlib import Path
 
+import tomli_w
+
 from radwalk.constants import X_SUN, Z_SUN
 from radwalk.errors import ConfigError
 from radwalk.host.params import Prior
@@ -396,36 +398,31 @@ def load(path) -> RunConfig:
     return from_dict(data, base_dir=path.parent)
 
 
-def _toml_value(v):
-    if isinstance(v, bool):
-        return "true" if v else "false"
-    if isinstance(v, (int, float)):
-        return repr(v) if v == v and abs(v) != float("inf") else ('inf' if v > 0 else '-inf') if v == v else "nan"
+def _toml_ready(v):
+    """Plain data tomli-w can write: None dropped from tables (TOML has no null; a list keeps the place as
+    ""), numpy scalars as Python numbers, anything else that is not TOML (paths, dates) as its text."""
+    if isinstance(v, dict):
+        return {str(k): _toml_ready(x) for k, x in v.items() if x is not None}
     if isinstance(v, (list, tuple)):
-        return "[" + ", ".join(_toml_value(x) for x in v) + "]"
-    if v is None:
-        return '""'
-    s = str(v).replace("\\", "\\\\").replace('"', '\\"')
-    return f'"{s}"'
+        return ["" if x is None else _toml_ready(x) for x in v]
+    if isinstance(v, (bool, int, float, str)):
+        return v
+    if hasattr(v, "item") and hasattr(v, "dtype"):  # a numpy scalar
+        return _toml_ready(v.item())
+    return str(v)
 
 
-def to_toml(d: dict, prefix: str = "") -> str:
-    """Writes nested plain data as TOML (tables after scalars, as TOML requires)."""
-    lines = []
-    scalars = {k: v for k, v in d.items() if not isinstance(v, dict)}
-    tables = {k: v for k, v in d.items() if isinstance(v, dict)}
-    for k, v in scalars.items():
-        if v is None:
-            continue
-        lines.append(f"{_key(k)} = {_toml_value(v)}")
-    for k, v in tables.items():
-        name = f"{prefix}.{_key(k)}" if prefix else _key(k)
-        body = to_toml(v, name)
-        if any(not isinstance(x, dict) for x in v.values()) or not v:
-            lines.append(f"\n[{name}]")
-        lines.append(body)
-    return "\n".join(x for x in lines if x != "")
+def to_toml(d: dict) -> str:
+    """Nested plain data as TOML text, written by tomli-w (keys, strings, inf and nan quoted as TOML requires).
 
+    Parameters
+    ----------
+    d : dict
+        Tables (dicts), arrays (lists, tuples) and scalars; None values are left out.
 
-def _key(k: str) -> str:
-    return k if k.replace("_", "").replace("-", "").isalnum() else f'"{k}"'
+    Returns
+    -------
+    str
+        TOML that ``tomllib.loads`` reads back as ``d`` (without its None values), no trailing newline.
+    """
+    return tomli_w.dumps(_toml_ready(d)).rstrip("\n")

@@ -8,7 +8,13 @@ import sys
 import zipfile
 from pathlib import Path
 
+import numpy as np
 import pytest
+
+if sys.version_info >= (3, 11):
+    import tomllib
+else:  # pragma: no cover
+    import tomli as tomllib
 
 ROOT = Path(__file__).resolve().parents[2]
 DEMO_FILES = ("demo_stars.ecsv", "truths.ecsv", "demo.toml")
@@ -103,3 +109,30 @@ def test_dask_executor_without_dask_names_the_extra(tmp_path):
     assert done.returncode == 2, done.stderr
     assert "pip install 'radwalk[dask]'" in done.stderr
     assert not (tmp_path / "out").exists()  # refused before any output folder is made
+
+
+def test_written_run_toml_reads_back_equal(tmp_path):
+    """run.toml is written by tomli-w: the config and the provenance read back as they went in."""
+    from radwalk.host import config as cfgmod
+    from radwalk.run.demo import demo_paths
+    from radwalk.run.orchestrate import write_run_toml
+
+    base = cfgmod.load(demo_paths()["config"])
+    config = cfgmod.from_dict({
+        **base.to_dict(),
+        "stages": {**base.to_dict()["stages"], "opacity": ["combined", "kramers"]},
+        "settings": {"band_stars": 8, "note": 'a "quoted" C:\\path, ünïcode\nand a newline'},
+        "priors": {"mass": {"kind": "uniform", "lower": 0.5, "upper": 3}, "g_bf": {}, "age": {"upper": 12}},
+        "columns": {"radius": "R [Rsun]", "teff": "T.eff"},
+        "run": {"seed": 7, "plugins": []},
+    })
+    provenance = {"seed": 7, "catalog": str(tmp_path / "odd \"name\".ecsv"), "plugins": [],
+                  "workers": np.int64(2), "limit": float("inf"), "started": "2026-12-03T13:00:00Z",
+                  "components": {"opacity": {"combined": {"module": "radwalk.plugins.opacity", "version": None}}}}
+    path = tmp_path / "run.toml"
+    write_run_toml(path, config, provenance)
+    assert cfgmod.load(path) == config  # [provenance] is ignored when read as a config
+    data = tomllib.loads(path.read_text(encoding="utf-8"))
+    assert data["provenance"] == {**provenance, "workers": 2,
+                                  "components": {"opacity": {"combined": {"module": "radwalk.plugins.opacity"}}}}
+    assert {k: v for k, v in data.items() if k != "provenance"} == tomllib.loads(cfgmod.to_toml(config.to_dict()))
