@@ -140,6 +140,7 @@ class Gaussian:
     """
 
     name = "gaussian"
+    fused_model = "gaussian"  # this loglike is what radwalk.inference.fused compiles (tests/inference/test_fused.py)
     description = "independent Gaussian errors; measurement and model error in quadrature per observable"
     fixed_params = FLOOR_NAMES
     params = _floor_params()

@@ -312,6 +312,10 @@ class TrackGridRelation(_GridSource):
     """R and L of the main-sequence star of mass M, metallicity Z and age, interpolated in the track grid."""
 
     name = "track-grid"
+    # its predict, support, log_prior_density and hydrogen_fraction are what radwalk.inference.fused compiles
+    # (tests/inference/test_fused.py holds the two equal); age_cap is the support's upper age, Gyr
+    fused_model = "track-grid"
+    age_cap = AGE_OF_UNIVERSE_GYR
     description = ("R and L of the main-sequence star at its age, interpolated in a grid of solved tracks "
                    "(mass x Z x age / t_MS) computed with the chosen opacity law")
     params = _params()
@@ -424,6 +428,7 @@ class TrackGridProfile(_GridSource):
     """Interior quantities interpolated in the track grid; radial structures solved for a few samples only."""
 
     name = "track-grid"
+    fused_model = "track-grid"  # its support and hydrogen_fraction are the relation's (radwalk.inference.fused)
     description = ("interior of the main-sequence star at its age: scalars interpolated in a grid of solved "
                    "tracks, radial structure solved (evolved from zero age) for the samples the bands need")
     params = _params()

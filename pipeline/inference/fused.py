@@ -36,7 +36,7 @@ import numpy as np
 
 from radwalk import constants as k
 
-__all__ = ["FusedGridLogProb", "fused_log_prob", "why_not_fused"]
+__all__ = ["FusedGridLogProb", "declares", "fused_log_prob", "why_not_fused"]
 
 _PRIOR_CODES = {"uniform": 0, "log-uniform": 1, "normal": 2, "truncated-normal": 2, "salpeter": 3, "kroupa": 4}
 _GYR = 1e9 * k.YEAR
@@ -56,6 +56,18 @@ def _prior_row(prior) -> list:
     return [code, prior.lower, prior.upper, mean, sigma, const]
 
 
+def declares(component, model: str) -> bool:
+    """Whether ``component``'s own class (not a parent's) declares ``fused_model = model``.
+
+    A built-in component states with ``fused_model`` that its arithmetic is the one this module fuses
+    (``"track-grid"``: the relation's prediction, support, age-prior term and composition rule, or the
+    profile's support and composition rule, all on ``self.grid(opacity)``; ``"gaussian"``: the Gaussian
+    likelihood with the ``floor_*`` model errors).  Only the class's own body counts, so a subclass that
+    overrides a method falls back to the general path unless it declares the model again.
+    """
+    return type(component).__dict__.get("fused_model") == model
+
+
 def why_not_fused(post) -> str | None:
     """Why ``post`` cannot use the fused path, in words; None when it can.
 
@@ -63,15 +75,12 @@ def why_not_fused(post) -> str | None:
     ----------
     post : radwalk.inference.posterior.Posterior
     """
-    from radwalk.plugins.likelihoods import Gaussian
-    from radwalk.plugins.track_grid import TrackGridProfile, TrackGridRelation
-
     st = post.stages
-    if type(st.relation) is not TrackGridRelation:
+    if not declares(st.relation, "track-grid"):
         return f"relation {st.relation.name!r} is not the built-in track grid"
-    if type(st.likelihood) is not Gaussian:
+    if not declares(st.likelihood, "gaussian"):
         return f"likelihood {st.likelihood.name!r} is not the built-in Gaussian"
-    grid_profile = type(st.profile) is TrackGridProfile
+    grid_profile = declares(st.profile, "track-grid")
     if grid_profile and st.profile.options_key != st.relation.options_key:
         return "the profile and the relation read different track grids"
     own = {"relation"} | ({"profile"} if grid_profile else set())
@@ -117,8 +126,6 @@ class FusedGridLogProb:
 
     def __init__(self, post):
         from radwalk.inference import _fused_kernel as kern
-        from radwalk.plugins.likelihoods import MODEL_ERROR
-        from radwalk.plugins.track_grid import AGE_OF_UNIVERSE_GYR
 
         st = post.stages
         probe = post.values(np.array([[p.default for p in post.params]]))
@@ -152,9 +159,10 @@ class FusedGridLogProb:
             inv = np.ones((1, 1)) if ax.n == 1 else ax.inv_den
             axes += [np.ascontiguousarray(ax.nodes, dtype=float), np.ascontiguousarray(inv, dtype=float)]
         ints[kern.I_NZ], ints[kern.I_NPHASE] = grid.shape[1], grid.shape[2]
-        floats[kern.F_AGE_CAP], floats[kern.F_GYR] = float(AGE_OF_UNIVERSE_GYR), _GYR
+        floats[kern.F_AGE_CAP], floats[kern.F_GYR] = float(st.relation.age_cap), _GYR
         floats[kern.F_FOUR_PI_SIGMA] = 4.0 * math.pi * k.SIGMA_SB
-        # the likelihood's sigmas: measurement and model error in quadrature, as plugins.likelihoods._residuals
+        # the likelihood's sigmas: measurement and model error (its floor_* settings, declared with their
+        # defaults) in quadrature, as radwalk.plugins.likelihoods._residuals
         obs = post.observed
         floors = {p.name: p.default for p in st.likelihood.params}
         floors.update({n: post.fixed[n] for n in post._lik_names if n in post.fixed})
@@ -162,7 +170,7 @@ class FusedGridLogProb:
             value = obs.values.get(key, np.nan)
             if not np.isfinite(value):
                 continue
-            floor = float(floors.get(f"floor_{key}", MODEL_ERROR[key]))
+            floor = float(floors[f"floor_{key}"])
             sigma = math.sqrt(obs.errors[key] ** 2 + (floor * value) ** 2)
             ints[kern.I_PRESENT + j] = 1
             floats[kern.F_OBS + j], floats[kern.F_SIG + j] = value, sigma

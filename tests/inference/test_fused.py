@@ -103,3 +103,19 @@ def test_other_stages_keep_the_general_path():
         theta = post.sample_prior(np.random.default_rng(0), 50)
         np.testing.assert_array_equal(post(theta), post.general(theta))
         np.testing.assert_array_equal(post.log_prior(theta), post.general_log_prior(theta))
+
+
+def test_only_the_declaring_class_is_fused():
+    """A subclass of a built-in component may change its arithmetic: it takes the general path unless it says so."""
+    from radwalk.inference.fused import declares
+    from radwalk.plugins.track_grid import TrackGridRelation
+
+    class Shifted(TrackGridRelation):
+        name = "shifted-grid"
+
+        def predict(self, M, X, Z, opacity, age=0.0):
+            R, L = super().predict(M, X, Z, opacity, age=age)
+            return 1.1 * R, L
+
+    assert declares(TrackGridRelation(), "track-grid")
+    assert not declares(Shifted(), "track-grid")
