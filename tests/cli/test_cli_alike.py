@@ -166,26 +166,26 @@ def test_progress_into_a_log_is_plain_lines(tmp_path, quick):
 @pytest.mark.subprocess
 def test_progress_on_a_terminal_is_redrawn(tmp_path, quick):
     leader, follower = pty.openpty()
+    proc = subprocess.Popen([*RADWALK, "fit", "--radius", "1", "0.04", "--config", quick, "--out", tmp_path / "f",
+                             "--no-plots"], stderr=follower, stdout=subprocess.DEVNULL, env=env(), cwd=tmp_path)
+    os.close(follower)  # the child holds the terminal's other end now
+    seen = b""
     try:
-        r = subprocess.run([*RADWALK, "fit", "--radius", "1", "0.04", "--config", quick, "--out", tmp_path / "f",
-                            "--no-plots"], stderr=follower, stdout=subprocess.PIPE, env=env(), cwd=tmp_path,
-                           timeout=600)
-        os.close(follower)
-        follower = None
-        seen = b""
-        while True:
+        while True:  # read while it runs, so a full terminal buffer never blocks the child
             try:
                 chunk = os.read(leader, 65536)
-            except OSError:  # the terminal's other end is closed: all read
+            except OSError:  # the child closed its end: all read
                 break
             if not chunk:
                 break
             seen += chunk
+        code = proc.wait(timeout=600)
     finally:
-        if follower is not None:
-            os.close(follower)
         os.close(leader)
-    assert r.returncode == 0
+        if proc.poll() is None:
+            proc.kill()
+            proc.wait()
+    assert code == 0, seen.decode(errors="replace")
     text = seen.decode()
     assert "\rsampling" in text.replace("\x1b[K", "") and "200/200 steps" in text
 
