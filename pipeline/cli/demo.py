@@ -15,7 +15,7 @@ def add_demo_parser(sub, common):
                        "The stage, --seed and --set options change the demo's config as they change a run's.")
     p.add_argument("--out", default="radwalk-demo", metavar="DIR", help="output folder (default ./radwalk-demo)")
     p.add_argument("--workers", type=POSITIVE_INT, metavar="N", help="worker processes (default: all cores)")
-    add_config_options(p, config_help="run config (TOML) in place of the demo's demo_catalog/demo.toml")
+    add_config_options(p, config_help="run config (TOML) in place of the demo's own demo.toml")
     p.add_argument("--force", action="store_true", help="recompute every star")
     p.add_argument("--no-plots", action="store_true",
                    help="fit and store the stars only, without their PNG plots (a later run without it draws them)")
