@@ -92,6 +92,7 @@ def cmd_fit(args):
     out = Path(args.out) if args.out else Path("radwalk-fit") / safe_folder_name(args.id)
     _check_writable(out)
     progress = ChainProgress(cfg.sampler.max_steps, cfg.sampler.tau_multiple, laws=cfg.opacity_names())
+    progress.begin(star.id, cfg.sampler.walkers)
     try:
         result = fit_star(star, cfg, outdir=out, plots=not args.no_plots, progress=progress)
     finally:

@@ -74,6 +74,12 @@ class ChainProgress:
         self._last = None
         self._drawn = False
 
+    def begin(self, star_id: str, walkers: int):
+        """One line before the optimiser starts (it runs before the first chunk of steps)."""
+        sys.stderr.write(f"radwalk: sampling star {star_id}: {walkers} walkers, up to {self.max_steps} steps, "
+                         "after the search for the best fit\n")
+        sys.stderr.flush()
+
     def text(self, law: str | None, steps: int, tau) -> str:
         tau_max = float(max(tau)) if len(tau) else float("nan")
         need = self.tau_multiple * tau_max

@@ -120,7 +120,7 @@ def test_fit_exits_1_when_the_star_fails(tmp_path, capsys):
     # the default stages: R = 300 R_sun at 1 L_sun is past every allowed composition's main sequence
     code, _, err = run(capsys, "fit", "--radius", "300", "1", "--luminosity", "1", "0.05", "--no-plots",
                        "--out", tmp_path / "x")
-    lines = [x for x in err.strip().splitlines() if not x.startswith(("warning:", "radwalk: sampling:"))]
+    lines = [x for x in err.strip().splitlines() if not x.startswith(("warning:", "radwalk: sampling"))]
     assert code == 1 and len(lines) == 1 and "beyond the end of the main sequence" in lines[0], err
     assert json.loads((tmp_path / "x" / "summary.json").read_text())["status"] == "failed"
 
@@ -158,7 +158,8 @@ def test_progress_into_a_log_is_plain_lines(tmp_path, quick):
     assert "\r" not in text and "\x1b" not in text  # no redrawn frames, no terminal codes
     assert "radwalk: star 'a' not-converged" in text  # the run: a line per star
     assert "radwalk: figures of star 'a'" in text
-    assert "radwalk: sampling: 100/200 steps, tau_max" in text  # the fit: the first chunk ...
+    assert "radwalk: sampling star star: 16 walkers, up to 200 steps" in text  # the fit: its start, ...
+    assert "radwalk: sampling: 100/200 steps, tau_max" in text  # ... the first chunk ...
     assert "radwalk: sampling: 200/200 steps" in text  # ... and the last
     assert text.count("notice:") == len(set(x for x in text.splitlines() if "notice:" in x))  # each once
 
