@@ -8,7 +8,12 @@ from pathlib import Path
 
 from radwalk.errors import ConfigError
 from radwalk.host import config as config_mod
-from radwalk.host.stages import STAGES
+from radwalk.host.stages import STAGE_TABLE, STAGES
+
+EXIT_CODES_TEXT = ("exit status: 0 every star fitted (or the command done), 1 some stars failed "
+                   "(or a plugin check failed), 2 bad input (options, config, catalog or paths); "
+                   "130 interrupted, 143 terminated (run again to resume)")
+"""The exit statuses every subcommand keeps to, shown in ``--help``."""
 
 
 def common_parser() -> argparse.ArgumentParser:
@@ -17,6 +22,23 @@ def common_parser() -> argparse.ArgumentParser:
     common.add_argument("--plugin", action="append", default=[], metavar="FILE",
                         help="load components from a plugin file (repeatable)")
     return common
+
+
+def add_config_options(parser: argparse.ArgumentParser, config_help: str = "run config (TOML)"):
+    """The run-config options `fit`, `run` and `demo` share: --config, --seed, one option per stage and --set.
+
+    :func:`config_from_args` lays them over the config file the same way for every subcommand.
+    """
+    parser.add_argument("--config", metavar="FILE", help=config_help)
+    parser.add_argument("--seed", type=SEED, metavar="S", help="global random seed (replaces the config's, else 1)")
+    for stage in STAGE_TABLE:
+        if stage.name == "opacity":
+            parser.add_argument("--opacity", metavar="LAW[,LAW...]",
+                                help=f"{stage.noun}, or several separated by commas to compare them")
+        else:
+            parser.add_argument(f"--{stage.name}", metavar="NAME", help=stage.noun)
+    parser.add_argument("--set", action="append", metavar="NAME=VALUE",
+                        help="hold a parameter fixed or set an option (repeatable)")
 
 
 def finite_float(text):

@@ -17,11 +17,25 @@ def add_check_parser(sub, common):
     c.set_defaults(func=cmd_check)
 
 
+def _could_be_plugin(target: str) -> bool:
+    """Whether ``target`` is an existing path or an importable module (whose load failure the table shows)."""
+    import importlib.util
+
+    if Path(target).expanduser().exists():
+        return True
+    try:
+        return importlib.util.find_spec(target) is not None
+    except (ImportError, ValueError):
+        return False
+
+
 def cmd_check(args):
     from radwalk.host.contracts import check_target, resolve_target
     from radwalk.report.opacity_map import plot_log_kappa_map
 
     options = parse_set(args.set) or None
+    if not _could_be_plugin(args.target):
+        resolve_target(args.target)  # names nothing at all: bad input (exit 2), unless a registered component
     reports = check_target(args.target, options=options)
     ok = True
     for rep in reports:
@@ -43,4 +57,4 @@ def cmd_check(args):
             except Exception as exc:  # noqa: BLE001
                 print(f"log-kappa map not written: {exc}")
     print("PASS" if ok else "FAIL")
-    return 0 if ok else 1
+    return 0 if ok else 1  # a check failed: exit status 1, as for a catalog with failed stars

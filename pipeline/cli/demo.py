@@ -2,19 +2,23 @@
 
 from __future__ import annotations
 
-from pathlib import Path
+import sys
 
-from radwalk.cli.args import POSITIVE_INT
-from radwalk.cli.run import print_outcome
+from radwalk.cli.args import POSITIVE_INT, add_config_options, config_from_args
+from radwalk.cli.run import exit_status, print_outcome, run_with_progress
 
 
 def add_demo_parser(sub, common):
-    """``radwalk demo [--out ./radwalk-demo] [--workers N]``"""
+    """``radwalk demo [--out ./radwalk-demo] [--workers N] [--seed S] [--config FILE] ...``"""
     p = sub.add_parser("demo", parents=[common], help="run the invented demo catalog end to end",
-                       description="Fits the invented demo catalog (demo_catalog/) and writes its report.")
+                       description="Fits the invented demo catalog (demo_catalog/) and writes its report.  "
+                       "The stage, --seed and --set options change the demo's config as they change a run's.")
     p.add_argument("--out", default="radwalk-demo", metavar="DIR", help="output folder (default ./radwalk-demo)")
     p.add_argument("--workers", type=POSITIVE_INT, metavar="N", help="worker processes (default: all cores)")
+    add_config_options(p, config_help="run config (TOML) in place of the demo's own demo.toml")
     p.add_argument("--force", action="store_true", help="recompute every star")
+    p.add_argument("--no-plots", action="store_true",
+                   help="fit and store the stars only, without their PNG plots (a later run without it draws them)")
     p.add_argument("--no-report", action="store_true", help="skip the HTML report")
     p.add_argument("--quiet", action="store_true", help="no progress bar")
     p.set_defaults(func=cmd_demo)
@@ -23,16 +27,16 @@ def add_demo_parser(sub, common):
 
 def cmd_demo(args) -> int:
     from radwalk.run.demo import demo_paths, demo_recovery
-    from radwalk.run.orchestrate import load_run_config, run_catalog
 
     paths = demo_paths()
-    config = load_run_config(paths["config"])
-    extra = [str(Path(p).expanduser().resolve()) for p in getattr(args, "plugin", None) or ()]
-    if extra:
-        config = config.with_changes(plugins=tuple(dict.fromkeys((*config.plugins, *extra))))
+    if not args.config:
+        args.config = str(paths["config"])
+    config = config_from_args(args, validate=False)  # the runner checks the stages itself
     print(f"radwalk demo: {paths['catalog'].name} (an invented field, see {paths['catalog'].parent / 'README.md'})")
-    outcome = run_catalog(paths["catalog"], args.out, config, workers=args.workers, force=args.force,
-                          report=not args.no_report, quiet=args.quiet)
+    outcome = run_with_progress(paths["catalog"], args.out, config, workers=args.workers, force=args.force,
+                                report=not args.no_report, quiet=args.quiet, plots=not args.no_plots)
+    for note in outcome.notices:
+        print(f"notice: {note}", file=sys.stderr)
     print_outcome(outcome)
     rec = demo_recovery(outcome.out_dir, paths["truths"])
     if rec["converged"]:
@@ -41,4 +45,4 @@ def cmd_demo(args) -> int:
               f"({paths['truths'].name})")
     if outcome.report:
         print(f"open {outcome.report} in a browser")
-    return 0
+    return exit_status(outcome)

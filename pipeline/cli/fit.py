@@ -3,11 +3,13 @@
 from __future__ import annotations
 
 import math
+import sys
 from pathlib import Path
 
-from radwalk.cli.args import config_from_args
+from radwalk.cli.args import add_config_options, config_from_args
+from radwalk.cli.progress import ChainProgress
 from radwalk.errors import ConfigError
-from radwalk.host.stages import STAGE_TABLE, STAGES
+from radwalk.host.stages import STAGES
 
 
 def add_fit_parser(sub, common):
@@ -17,13 +19,8 @@ def add_fit_parser(sub, common):
     f.add_argument("--luminosity", nargs=2, type=float, metavar=("VALUE", "ERR"), help="luminosity and error, L_sun")
     f.add_argument("--teff", nargs=2, type=float, metavar=("VALUE", "ERR"), help="effective temperature and error, K")
     f.add_argument("--feh", nargs=2, type=float, metavar=("VALUE", "ERR"), help="[Fe/H] and error, dex (prior on Z)")
-    f.add_argument("--config", help="run configuration (TOML)")
     f.add_argument("--out", help="output folder (default: radwalk-fit/<id>)")
-    f.add_argument("--seed", type=int, help="random seed (default: the config's, else 1)")
-    for stage in STAGE_TABLE:
-        more = ", or several separated by commas to compare them" if stage.name == "opacity" else ""
-        f.add_argument(f"--{stage.name}", help=f"{stage.noun}{more}")
-    f.add_argument("--set", action="append", metavar="NAME=VALUE", help="hold a parameter fixed or set an option")
+    add_config_options(f)
     f.add_argument("--no-plots", action="store_true", help="skip the PNG plots")
     f.add_argument("--json", action="store_true", help="print the summary as JSON")
     f.set_defaults(func=cmd_fit)
@@ -94,12 +91,16 @@ def cmd_fit(args):
         raise ConfigError(str(exc)) from None
     out = Path(args.out) if args.out else Path("radwalk-fit") / safe_folder_name(args.id)
     _check_writable(out)
-    result = fit_star(star, cfg, outdir=out, plots=not args.no_plots)
+    progress = ChainProgress(cfg.sampler.max_steps, cfg.sampler.tau_multiple, laws=cfg.opacity_names())
+    progress.begin(star.id, cfg.sampler.walkers)
+    try:
+        result = fit_star(star, cfg, outdir=out, plots=not args.no_plots, progress=progress)
+    finally:
+        progress.close()
     doc = result_document(star, cfg, result)
-    if result.status == "failed":
-        from radwalk.errors import ModelError
-
-        raise ModelError(result.reason)
+    if result.status == "failed":  # the input was fine, the star could not be fitted: exit status 1
+        print(f"radwalk: star {star.id} failed: {result.reason}", file=sys.stderr)
+        return 1
     if args.json:
         print(dumps(doc))
     else:

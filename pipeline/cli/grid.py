@@ -130,7 +130,11 @@ def cmd_grid_build(args):
         from radwalk.run.executors import dask_tracks
 
         runner = dask_tracks(args.scheduler)
-    grid = build_grid(kappa, spec, workers=workers, progress=not args.no_progress, runner=runner)
+    from radwalk.cli.progress import stderr_is_terminal
+
+    # the bar only on a terminal: in a log file its carriage-return frames pile up into one line
+    grid = build_grid(kappa, spec, workers=workers, progress=not args.no_progress and stderr_is_terminal(),
+                      runner=runner)
     try:
         grid.save(path)
     except OSError as exc:

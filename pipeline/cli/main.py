@@ -1,7 +1,9 @@
 """The `radwalk` command line: the parser and the one place errors become exit codes.
 
-Every deliberate error (a :class:`radwalk.errors.RadwalkError`) becomes one
-line on stderr and exit status 2; warnings about validity ranges are printed
+Exit statuses: 0 when every star was fitted (or the command did its work),
+1 when some stars failed (or a plugin check failed), 2 on bad input.  Every
+deliberate error (a :class:`radwalk.errors.RadwalkError`) becomes one line on
+stderr and exit status 2; warnings about validity ranges are printed
 as ``warning:`` lines and go on.  Each subcommand lives in its own module and
 imports its heavy dependencies only when it runs, so ``radwalk --help`` stays
 quick.
@@ -15,7 +17,7 @@ import warnings
 
 from radwalk import __version__
 from radwalk.cli import check, demo, fit, grid, model, plugins, report, run
-from radwalk.cli.args import common_parser
+from radwalk.cli.args import EXIT_CODES_TEXT, common_parser
 from radwalk.errors import RadwalkError
 
 SUBCOMMANDS = (
@@ -32,7 +34,20 @@ def build_parser() -> argparse.ArgumentParser:
     sub = p.add_subparsers(dest="command", required=True)
     for add in SUBCOMMANDS:
         add(sub, common)
+    for parser in (p, *_all_subparsers(sub)):  # every --help ends with the exit statuses
+        parser.epilog = EXIT_CODES_TEXT
     return p
+
+
+def _all_subparsers(action) -> list:
+    """The parsers below a subparsers action, nested ones (`grid build`) included."""
+    found = []
+    for parser in dict.fromkeys(action.choices.values()):
+        found.append(parser)
+        for a in parser._actions:  # argparse keeps the subparsers action only there
+            if isinstance(a, argparse._SubParsersAction):
+                found.extend(_all_subparsers(a))
+    return found
 
 
 def _show_warning(message, category, filename, lineno, file=None, line=None):

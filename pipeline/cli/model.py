@@ -37,6 +37,11 @@ def cmd_model(args):
 
     if args.profile_out and Path(args.profile_out).is_dir():
         raise ConfigError(f"--profile-out {args.profile_out} is a folder; give a file name (e.g. profile.ecsv)")
+    if args.profile_out:  # a misspelt folder is refused before the model runs, never created
+        parent = Path(args.profile_out).expanduser().parent
+        if not parent.is_dir():
+            what = "is not a folder" if parent.exists() else "does not exist"
+            raise ConfigError(f"--profile-out {args.profile_out}: the folder {parent} {what}; create it first")
 
     stages_named = {s.name: getattr(args, s.name) for s in STAGE_TABLE if s.forward and getattr(args, s.name)}
     interior = one_star(args.mass, args.X, args.Z, stages=stages_named, settings=parse_set(args.set),

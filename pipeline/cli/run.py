@@ -5,7 +5,7 @@ from __future__ import annotations
 import sys
 from typing import TYPE_CHECKING
 
-from radwalk.cli.args import POSITIVE_INT, SEED, config_from_args
+from radwalk.cli.args import POSITIVE_INT, add_config_options, config_from_args
 
 if TYPE_CHECKING:
     from radwalk.run.orchestrate import RunOutcome
@@ -19,13 +19,11 @@ def add_run_parser(sub, common):
                        "Running the same command again resumes an interrupted run.")
     p.add_argument("catalog", metavar="CATALOG", help="ECSV, FITS, VOTable or CSV table of stars")
     p.add_argument("--out", required=True, metavar="DIR", help="output folder (created if needed)")
-    p.add_argument("--config", metavar="FILE", help="run config (TOML)")
     p.add_argument("--executor", choices=("local", "dask"), default=None,
                    help="local process pool (default) or a Dask cluster")
     p.add_argument("--workers", type=POSITIVE_INT, metavar="N", help="worker processes (default: all cores)")
     p.add_argument("--scheduler", metavar="ADDRESS", help="Dask scheduler address, e.g. tcp://host:8786")
-    p.add_argument("--seed", type=SEED, metavar="S", help="global seed (replaces the config's)")
-    p.add_argument("--opacity", metavar="LAW[,LAW...]", help="opacity law, or several to compare")
+    add_config_options(p)
     p.add_argument("--force", action="store_true", help="recompute every star; accept a changed catalog or config")
     p.add_argument("--no-plots", action="store_true",
                    help="fit and store the stars only, without their PNG plots (a later run without it draws them)")
@@ -47,12 +45,30 @@ def print_outcome(outcome: RunOutcome):
 def cmd_run(args) -> int:
     config = config_from_args(args, validate=False)  # run_catalog checks the stages itself
     executor = args.executor or ("dask" if args.scheduler else "local")
-    from radwalk.run.orchestrate import run_catalog
-
-    outcome = run_catalog(args.catalog, args.out, config, executor=executor, workers=args.workers,
-                          scheduler=args.scheduler, force=args.force, report=not args.no_report, quiet=args.quiet,
-                          plots=not args.no_plots)
+    outcome = run_with_progress(args.catalog, args.out, config, executor=executor, workers=args.workers,
+                                scheduler=args.scheduler, force=args.force, report=not args.no_report,
+                                quiet=args.quiet, plots=not args.no_plots)
     for note in outcome.notices:
         print(f"notice: {note}", file=sys.stderr)
     print_outcome(outcome)
-    return 0
+    return exit_status(outcome)
+
+
+def exit_status(outcome: RunOutcome) -> int:
+    """0 when every star was fitted (converged or not), 1 when some failed."""
+    return 1 if outcome.failed else 0
+
+
+def run_with_progress(catalog, out, config, quiet: bool = False, **options) -> RunOutcome:
+    """:func:`radwalk.run.orchestrate.run_catalog` with progress fit for where stderr goes.
+
+    On a terminal the runner's bars; elsewhere (a log file, a pipe) the runner's
+    per-star log lines on stderr instead, with no carriage-return frames.
+    """
+    from radwalk.cli.progress import plain_lines, stderr_is_terminal
+    from radwalk.run.orchestrate import LOG, run_catalog
+
+    if quiet or stderr_is_terminal():
+        return run_catalog(catalog, out, config, quiet=quiet, **options)
+    with plain_lines(LOG.name):
+        return run_catalog(catalog, out, config, quiet=True, **options)

@@ -161,12 +161,16 @@ def _evenly(n_total: int, n_keep: int):
 
 
 def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity: str | None = None,
-            chain_path=None) -> tuple[dict, FitProducts]:
-    """Samples one star under one opacity law; returns its summary and in-memory products."""
+            chain_path=None, progress=None) -> tuple[dict, FitProducts]:
+    """Samples one star under one opacity law; returns its summary and in-memory products.
+
+    ``progress(law, steps, tau)``, when given, is called after each chunk of sampler steps.
+    """
     stages = stages_for(config, opacity)
     post = Posterior(stages, star.observations(), config, feh=star.feh)
     chain_seed, ppc_seed, prior_seed = seed.spawn(3)
-    chain = run_chain(post, config.sampler, chain_seed, chain_path=chain_path)
+    step = None if progress is None else (lambda steps, tau: progress(opacity, steps, tau))
+    chain = run_chain(post, config.sampler, chain_seed, chain_path=chain_path, progress=step)
     flat, flat_lp = chain.flat()
     check_reachable(post, np.vstack([chain.map_theta[None, :], flat]))  # the best-fitting of them is judged
     indep = post.draw_independent(np.random.default_rng(prior_seed), flat.shape[0], theta=flat)
@@ -244,7 +248,7 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     return summary, products
 
 
-def fit_laws(star: Star, config: RunConfig, folder: Path | None = None) -> tuple[dict, dict]:
+def fit_laws(star: Star, config: RunConfig, folder: Path | None = None, progress=None) -> tuple[dict, dict]:
     """Fits one star under every opacity law of the config.
 
     Returns the summary (the primary law's, with a ``comparison`` section when
@@ -257,7 +261,7 @@ def fit_laws(star: Star, config: RunConfig, folder: Path | None = None) -> tuple
         if folder is not None:
             chain_path = folder / chain_file_name(op, primary=j == 0, partial=True)
         # every law gets the same fresh seed, so a comparison is paired and order-free
-        fits[op], products[op] = fit_one(star, config, seed_for(config.seed, star.id), op, chain_path)
+        fits[op], products[op] = fit_one(star, config, seed_for(config.seed, star.id), op, chain_path, progress)
     summary = dict(fits[config.opacity_names()[0]])
     if len(fits) > 1:
         summary["comparison"] = {op: {"parameters": f["parameters"], "derived": f["derived"],
@@ -270,8 +274,10 @@ def fit_laws(star: Star, config: RunConfig, folder: Path | None = None) -> tuple
     return summary, products
 
 
-def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> StarResult:
+def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True, progress=None) -> StarResult:
     """The per-star task.  Never raises for a star's own problems: they become status 'failed'.
+
+    ``progress(law, steps, tau)``, when given, is called after each chunk of sampler steps.
 
     Raises
     ------
@@ -286,7 +292,7 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True) -> 
     try:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ValidityWarning)  # collected into the summary instead
-            summary, products = fit_laws(star, config, folder)
+            summary, products = fit_laws(star, config, folder, progress)
         primary = config.opacity_names()[0]
         status = "ok" if summary["sampler"]["converged"] else "not-converged"
         reason = "" if status == "ok" else summary["sampler"]["reason"]

@@ -74,8 +74,6 @@ def test_fit_json_without_teff(tmp_path, capsys, fast_config):
         (["--radius", "1", "0.02", "--opacity", "kramerz"], "did you mean 'kramers'"),
         (["--radius", "1", "0.02", "--set", "nn=2"], "unknown parameter 'nn'"),
         (["--radius", "1", "0.02", "--feh", "0.1", "0"], "[Fe/H] = 0.1 needs a finite value"),
-        (["--radius", "300", "1", "--luminosity", "1", "0.05", "--no-plots"],
-         "beyond the end of the main sequence for every allowed composition"),
     ],
 )
 def test_fit_bad_input(tmp_path, capsys, fast_config, extra, needle):

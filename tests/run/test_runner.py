@@ -449,7 +449,7 @@ def test_cli_run_and_demo_parsers(base, tmp_path, capsys):
     args = parser.parse_args(["run", str(base["catalog"]), "--out", str(out), "--config", str(base["config_path"]),
                               "--quiet", "--no-report", "--no-plots"])
     assert args.no_plots and not parser.parse_args(["run", "c", "--out", "o"]).no_plots
-    assert cmd_run(args) == 0
+    assert cmd_run(args) == 1  # one star failed: exit status 1
     printed = capsys.readouterr().out
     assert "5 stars:" in printed and "1 failed" in printed and "(4 done earlier)" in printed
     assert "4 without figures" in printed and not list((out / "stars").rglob("*.png"))
