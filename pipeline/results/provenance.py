@@ -8,14 +8,14 @@ import sys
 VERSION_PACKAGES = ("numpy", "scipy", "emcee", "astropy", "h5py")
 
 
-def package_versions() -> dict:
-    """radwalk's, Python's and :data:`VERSION_PACKAGES`' versions ("not installed" where absent)."""
+def package_versions(packages=VERSION_PACKAGES) -> dict:
+    """radwalk's, Python's and ``packages``' versions ("not installed" where absent)."""
     from importlib import metadata
 
     from radwalk import __version__
 
     out = {"radwalk": __version__, "python": sys.version.split()[0]}
-    for name in VERSION_PACKAGES:
+    for name in packages:
         try:
             out[name] = metadata.version(name)
         except metadata.PackageNotFoundError:

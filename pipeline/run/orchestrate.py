@@ -37,7 +37,6 @@ from contextlib import contextmanager
 from dataclasses import dataclass, field
 from pathlib import Path
 
-from radwalk import __version__
 from radwalk.errors import (
     CatalogError,
     ConfigError,
@@ -61,6 +60,7 @@ from radwalk.results.layout import (
     safe_folder_name,
     star_folder,
 )
+from radwalk.results.provenance import package_versions
 from radwalk.run.catalog import Catalog, CatalogEntry, read_catalog
 from radwalk.run.executors import make_executor, require_dask
 from radwalk.run.lock import folder_lock
@@ -108,18 +108,6 @@ def _duration(seconds: float) -> str:
     m, s = divmod(int(round(seconds)), 60)
     h, m = divmod(m, 60)
     return f"{h}h{m:02d}m{s:02d}s" if h else f"{m}m{s:02d}s"
-
-
-def _versions() -> dict:
-    from importlib import metadata
-
-    out = {"radwalk": __version__, "python": sys.version.split()[0]}
-    for name in PROVENANCE_PACKAGES:
-        try:
-            out[name] = metadata.version(name)
-        except metadata.PackageNotFoundError:
-            out[name] = "not installed"
-    return out
 
 
 def catalog_failure_doc(entry: CatalogEntry, catalog: Catalog, config: RunConfig) -> dict:
@@ -379,7 +367,8 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         table = _write_summary(out, catalog)
         finished = now()
         provenance = {
-            **_versions(), "seed": config.seed, "catalog": str(catalog.path), "catalog_sha256": catalog.fingerprint,
+            **package_versions(PROVENANCE_PACKAGES), "seed": config.seed, "catalog": str(catalog.path),
+            "catalog_sha256": catalog.fingerprint,
             "config_sha256": state["config_sha256"], "plugins": list(hashes),
             "plugin_sha256": list(hashes.values()), "executor": executor, "workers": workers,
             "first_started": state["first_started"], "started": started, "finished": finished,
