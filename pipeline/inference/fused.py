@@ -22,7 +22,8 @@ outside the support included).
 
 Anything else -- a plugin component, a sampled opacity parameter, a prior
 kind added later -- keeps the general path: :func:`fused_log_prob` returns
-None and says why in :attr:`FusedUnavailable.reason` terms (``why_not``).
+None and :func:`why_not_fused` says why.  Components opt in by declaring
+``fused_model`` on their own class (:func:`declares`).
 
 The kernel is compiled once and cached on disk beside this module by numba
 (``cache=True``), so a new process loads it instead of compiling it.
@@ -188,16 +189,16 @@ class FusedGridLogProb:
 
     def __call__(self, theta) -> np.ndarray:
         """Log-posterior, [n]."""
-        theta = np.ascontiguousarray(np.atleast_2d(theta), dtype=float)
-        out = np.empty(theta.shape[0])
-        self._kernel(theta, out, *self._args)
-        return out
+        return self._run(theta, self._args)
 
     def log_prior(self, theta) -> np.ndarray:
         """Log prior (declared priors, [Fe/H], the support and the age-prior term), [n]."""
+        return self._run(theta, self._prior_args)
+
+    def _run(self, theta, args) -> np.ndarray:
         theta = np.ascontiguousarray(np.atleast_2d(theta), dtype=float)
         out = np.empty(theta.shape[0])
-        self._kernel(theta, out, *self._prior_args)
+        self._kernel(theta, out, *args)
         return out
 
 

@@ -152,7 +152,7 @@ class Posterior:
 
     def log_prior(self, theta):
         """Log prior [n] of ``theta`` [n, ndim], inside the components' supports (fused path when it applies)."""
-        fused = self._fused if self._fused is not None else self._build_fused()
+        fused = self._fused_path()
         return fused.log_prior(theta) if fused else self.general_log_prior(theta)
 
     def general_log_prior(self, theta):
@@ -198,19 +198,21 @@ class Posterior:
 
     def __call__(self, theta):
         """Log-posterior [n] of ``theta`` [n, ndim]: the fused path when the stages allow it, else the general."""
-        fused = self._fused if self._fused is not None else self._build_fused()
+        fused = self._fused_path()
         return fused(theta) if fused else self.general(theta)
 
-    def _build_fused(self):
-        from radwalk.inference.fused import fused_log_prob
+    def _fused_path(self):
+        """The fused log-posterior, built on first use, or False when these stages take the general path."""
+        if self._fused is None:
+            from radwalk.inference.fused import fused_log_prob
 
-        self._fused = fused_log_prob(self) or False
+            self._fused = fused_log_prob(self) or False
         return self._fused
 
     @property
     def fused(self) -> bool:
         """Whether calls take the compiled path of :mod:`radwalk.inference.fused` (built if not yet)."""
-        return bool(self._fused if self._fused is not None else self._build_fused())
+        return bool(self._fused_path())
 
     def general(self, theta):
         """Log-posterior [n] through each stage's own methods (what the fused path must equal)."""
