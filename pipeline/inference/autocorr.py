@@ -4,10 +4,10 @@ The estimate is the one of :func:`emcee.autocorr.integrated_time` (Sokal's
 self-consistent window: the normalised autocorrelation function of each walker,
 averaged over walkers, summed up to the first lag ``M`` with ``M >= c tau(M)``;
 A. D. Sokal, "Monte Carlo methods in statistical mechanics: foundations and
-new algorithms", 1996 lecture notes, section 3; Goodman & Weare 2010 for the
-ensemble).  emcee recomputes the whole autocorrelation function by FFT on each
-call, so calling it after every chunk of a chain of ``N`` steps costs
-``O(N^2 log N)`` in all.  Only the lags up to the window enter the estimate,
+new algorithms", in Functional Integration, NATO ASI Series B 361, Springer
+1997, section 3; Goodman & Weare 2010 for the ensemble).  emcee recomputes
+the whole autocorrelation function by FFT on each call, so calling it after
+every chunk of a chain of ``N`` steps costs ``O(N^2 log N)`` in all.  Only the lags up to the window enter the estimate,
 and the window stops growing once the chain is a few ``c tau`` long, so here
 the lag sums
 
