@@ -100,8 +100,9 @@ _OPTIONS = (
     Option("grid", "path of a track-grid file (radwalk grid build) to use instead of the cache's grid"),
     Option("grid_mass", "build only the tracks covering this mass range, 'LO..HI' in M_sun"),
     Option("grid_z", "build only the tracks covering this metallicity range, 'LO..HI'"),
-    Option("band_stars", f"posterior samples whose radial structure is solved for the profile bands (default "
-                         f"{BAND_SAMPLES}; each costs ~2 s of CPU)"),
+    Option("band_stars", f"posterior samples whose radial structure is solved for the profile bands when the "
+                         f"grid stores no profiles (a grid file of version 1) or a plugin adds derived quantities "
+                         f"(default {BAND_SAMPLES}; each costs ~2 s of CPU)"),
 )
 
 
@@ -425,7 +426,8 @@ def _radius_at(L, values):
 
 
 class TrackGridProfile(_GridSource):
-    """Interior quantities interpolated in the track grid; radial structures solved for a few samples only."""
+    """Interior quantities and radial profiles interpolated in the track grid; structures solved only on request
+    (a plugin's derived quantities, or a grid file without profiles)."""
 
     name = "track-grid"
     fused_model = "track-grid"  # its support and hydrogen_fraction are the relation's (radwalk.inference.fused)
@@ -491,6 +493,40 @@ class TrackGridProfile(_GridSource):
                 "main_sequence_lifetime": v["main_sequence_lifetime"] / GYR,
                 "mu": mu(X0, Zs) + 0.0 * v["radius"],  # the grid's composition, not the sampled X
             }
+
+    def band_profiles(self, M, X, Z, opacity=None, age=0.0):
+        """Radial profiles of the stars at their ages, interpolated in the grid's stored profiles, for the bands.
+
+        Parameters
+        ----------
+        M : array_like [n], g
+        X : array_like [n]
+            Not used: the grid's composition rule sets X.
+        Z : array_like [n]
+        opacity : callable
+            The bound opacity stage (it selects the grid).
+        age : array_like [n] or float, Gyr
+
+        Returns
+        -------
+        (r_rel, fields) or None
+            r_rel [g] and fields name -> [n, g]: rho (g/cm^3), T (K), kappa (cm^2/g), mean_free_path (cm),
+            diffusion_time_cumulative (yr), mass (m/M), convective (0/1); NaN outside the grid.  None for a
+            grid file without profiles (version 1): the bands are then solved (:meth:`profile`).
+
+        Notes
+        -----
+        Linear in log M, log Z and phase between the grid's tracks
+        (:mod:`radwalk.forward.grid_profiles`): microseconds per star, against seconds for a solved one.
+        """
+        grid = self.grid(opacity)
+        if not grid.has_profiles:
+            return None
+        M = np.atleast_1d(np.asarray(M, dtype=float)).reshape(-1)
+        n = M.size
+        r_rel, fields = grid.profiles_at(M, _flat(Z, n), _flat(age, n) * GYR)
+        fields["diffusion_time_cumulative"] = fields["diffusion_time_cumulative"] / k.YEAR
+        return r_rel, fields
 
     def profile(self, M, R, X, Z, opacity=None, age=0.0) -> Profile:
         """Solved structures of ``n`` stars at their ages, with the grid's composition and mixing length.

@@ -38,7 +38,11 @@ computed with, build costs and failed tracks), ``log_mass`` [n_mass]
 ``lifetime`` [n_mass, n_Z] (s, float64), ``table`` [n_mass, n_Z, n_phase,
 n_q] (float32: log10 of cgs values for the logarithmic quantities, 7
 significant digits, 5e-6 relative at worst, far below the interpolation
-error), ``track_steps`` and ``track_cpu_seconds`` [n_mass, n_Z].  The age at a
+error), ``track_steps`` and ``track_cpu_seconds`` [n_mass, n_Z]; since version
+2 also ``profiles`` [n_mass, n_Z, n_profile_phase, n_field, n_radius] and
+``profile_radius`` [n_radius], the tracks' radial profiles for the profile
+bands (:mod:`radwalk.forward.grid_profiles`), and the file is compressed.
+Version 1 files (no profiles) are still read.  The age at a
 node is phase * lifetime.  Files are named ``trackgrid-<key>.npz`` in the
 cache folder (:func:`radwalk.forward.grid.cache_dir`); the key hashes
 everything in the header but the build costs, so a change in the solver's or
@@ -67,7 +71,7 @@ import numpy as np
 
 from radwalk import constants as const
 from radwalk.errors import ConfigError, ModelError
-from radwalk.forward import disk_memo
+from radwalk.forward import disk_memo, grid_profiles
 from radwalk.forward.grid import cache_dir
 from radwalk.physics.structure.calibration import CALIBRATED_ALPHA, CALIBRATED_Y0, composition_from_helium
 from radwalk.physics.structure.evolution import X_C_END
@@ -81,7 +85,8 @@ __all__ = ["GridSpec", "TrackGrid", "build_grid", "cached_grid", "grid_key", "gr
            "catalog_ranges", "MeshOpacity", "track_opacity"]
 
 FORMAT = "radwalk-track-grid"
-VERSION = 1
+VERSION = 2
+READABLE_VERSIONS = (1, 2)  # version 1 files carry no radial profiles (the bands are then solved)
 
 PRIMORDIAL_HELIUM = 0.2471
 """Y_p of standard BBN at the Planck 2018 baryon density (Planck Collaboration 2020, A&A 641, A6; from memory)."""
@@ -159,6 +164,10 @@ class GridSpec:
         Central hydrogen fraction that ends the main sequence (phase 1).
     n_mesh : int
         Mesh points of the structure solver.
+    profile_phases, profile_radii : int
+        Radial profiles kept per track (:mod:`radwalk.forward.grid_profiles`):
+        at this many equally spaced phases, on this many points in r/R; 0
+        phases keeps none.
     X : float or None
         A fixed initial hydrogen fraction for every track, instead of the
         helium-enrichment rule (then Y = 1 - X - Z).
@@ -178,6 +187,8 @@ class GridSpec:
     dXc: float = 0.02
     X_end: float = X_C_END
     n_mesh: int = 400
+    profile_phases: int = grid_profiles.DEFAULT_PHASES
+    profile_radii: int = grid_profiles.DEFAULT_RADII
     X: float | None = None
     mass_nodes: tuple | None = None
     z_nodes: tuple | None = None
@@ -208,6 +219,9 @@ class GridSpec:
             object.__setattr__(self, count_field, len(nodes))
         if self.n_phase < 2:
             raise ConfigError(f"n_phase = {self.n_phase}: a track needs at least 2 phase points")
+        if self.profile_phases and (self.profile_phases < 2 or self.profile_radii < 3):
+            raise ConfigError(f"profiles at {self.profile_phases} phases on {self.profile_radii} radii: keep at "
+                              "least 2 phases and 3 radii, or 0 phases for none")
         for Z in self.metallicities():
             X0 = self.hydrogen(Z)
             if not (X_RANGE[0] <= X0 <= X_RANGE[1]):
@@ -525,10 +539,12 @@ class TrackGrid:
     X0 : ndarray [n_z], optional
         Initial hydrogen of the tracks.
     track_steps, track_cpu_seconds : ndarray [n_mass, n_z], optional
+    profiles : ndarray [n_mass, n_z, n_profile_phase, n_field, n_radius], optional
+        Radial profiles of the tracks (:mod:`radwalk.forward.grid_profiles`); None for a grid without.
     """
 
     def __init__(self, log_mass, log_z, phase, lifetime, table, header, X0=None, track_steps=None,
-                 track_cpu_seconds=None):
+                 track_cpu_seconds=None, profiles=None):
         self.log_mass = np.asarray(log_mass, dtype=float)
         self.log_z = np.asarray(log_z, dtype=float)
         self.phase = np.asarray(phase, dtype=float)
@@ -545,6 +561,12 @@ class TrackGrid:
         self.X0 = None if X0 is None else np.asarray(X0, dtype=float)
         self.track_steps = track_steps
         self.track_cpu_seconds = track_cpu_seconds
+        self.profiles = None if profiles is None else np.asarray(profiles, dtype=np.float32)
+        nf = len(grid_profiles.FIELDS)
+        if self.profiles is not None and (self.profiles.ndim != 5 or self.profiles.shape[:2] != (nm, nz)
+                                          or self.profiles.shape[3] != nf or self.profiles.shape[2] < 2):
+            raise ConfigError(f"grid profiles {self.profiles.shape} do not match the axes {nm} x {nz} and the "
+                              f"{nf} profile fields")
         self._m = _Axis(self.log_mass)
         self._z = _Axis(self.log_z)
         self._log = np.array([q["log10"] for q in self.header["quantities"]], dtype=bool)
@@ -625,6 +647,51 @@ class TrackGrid:
         out["main_sequence_lifetime"] = life + nan
         return out, inside
 
+    @property
+    def has_profiles(self) -> bool:
+        """Whether the grid carries radial profiles (grid files of version 1 do not)."""
+        return self.profiles is not None
+
+    def profiles_at(self, M, Z, age):
+        """Radial profiles at (M, Z, age), linear in log M, log Z and phase (:mod:`radwalk.forward.grid_profiles`).
+
+        Parameters
+        ----------
+        M : array_like [n], g
+        Z, age : array_like [n] (or scalar); age in s since the zero-age main sequence
+
+        Returns
+        -------
+        r_rel : ndarray [n_radius]
+            r/R of the profile points.
+        fields : dict of str -> ndarray [n, n_radius]
+            :data:`radwalk.forward.grid_profiles.FIELDS` in cgs, ``convective`` 0/1 and
+            ``mean_free_path`` (cm); NaN for samples outside (as :meth:`__call__`'s ``inside``).
+
+        Raises
+        ------
+        ConfigError
+            The grid carries no profiles (:attr:`has_profiles`).
+        """
+        if self.profiles is None:
+            raise ConfigError("this track grid carries no radial profiles (a grid file of version 1): "
+                              "rebuild it with `radwalk grid build`")
+        M = np.asarray(M, dtype=float).reshape(-1)
+        n = M.size
+        Z = np.broadcast_to(np.asarray(Z, dtype=float).reshape(-1), (n,)) if np.ndim(Z) else np.full(n, float(Z))
+        age = (np.broadcast_to(np.asarray(age, dtype=float).reshape(-1), (n,)) if np.ndim(age)
+               else np.full(n, float(age)))
+        with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
+            *_, in_mz, life = self._lifetimes(M, Z, n)
+            phase = age / life
+            inside = in_mz & np.isfinite(life) & (age >= 0.0) & (phase <= 1.0 + 1e-9)
+            lm, lz = np.log10(M / const.M_SUN), np.log10(Z)
+            safe = np.where(inside, 1.0, np.nan)
+            fields = grid_profiles.interpolate(self.profiles, self.log_mass, self.log_z, np.where(inside, lm, 0.0),
+                                               np.where(inside, lz, 0.0), np.where(inside, phase, 0.0))
+        fields = {name: v * safe[:, None] for name, v in fields.items()}
+        return grid_profiles.radius_nodes(self.profiles.shape[4]), fields
+
     def lifetime_at(self, M, Z):
         """Interpolated main-sequence lifetime t_MS(M, Z), s, [n] (NaN outside the grid).
 
@@ -654,8 +721,9 @@ class TrackGrid:
         lm = np.delete(self.log_mass, index) if ax == 0 else self.log_mass
         lz = np.delete(self.log_z, index) if ax == 1 else self.log_z
         X0 = None if self.X0 is None or ax == 0 else np.delete(self.X0, index)
+        prof = None if self.profiles is None else np.delete(self.profiles, index, axis=ax)
         return TrackGrid(lm, lz, self.phase, np.delete(self.lifetime, index, axis=ax),
-                         np.delete(self.table, index, axis=ax), self.header, X0=X0)
+                         np.delete(self.table, index, axis=ax), self.header, X0=X0, profiles=prof)
 
     def save(self, path) -> Path:
         """Write the grid (atomically: a temporary file renamed into place)."""
@@ -665,11 +733,14 @@ class TrackGrid:
         arrays = dict(header=np.array(json.dumps(self.header, sort_keys=True, allow_nan=False)),
                       log_mass=self.log_mass, log_z=self.log_z, phase=self.phase, lifetime=self.lifetime,
                       table=self.table)
-        for name in ("X0", "track_steps", "track_cpu_seconds"):
+        for name in ("X0", "track_steps", "track_cpu_seconds", "profiles"):
             if getattr(self, name) is not None:
                 arrays[name] = np.asarray(getattr(self, name))
+        if self.profiles is not None:
+            arrays["profile_radius"] = grid_profiles.radius_nodes(self.profiles.shape[4])
         with open(tmp, "wb") as fh:
-            np.savez(fh, **arrays)
+            # Compressed: the profiles are most of the file (about 6 MB raw for the default grid).
+            np.savez_compressed(fh, **arrays)
         os.replace(tmp, path)
         return path
 
@@ -678,15 +749,19 @@ class TrackGrid:
         """Read a grid file (no pickled objects are read)."""
         with np.load(Path(path), allow_pickle=False) as f:
             header = json.loads(str(f["header"]))
-            if header.get("format") != FORMAT or header.get("version") != VERSION:
-                raise ConfigError(f"{path}: not a {FORMAT} file of version {VERSION}")
-            opt = {k: f[k] for k in ("X0", "track_steps", "track_cpu_seconds") if k in f.files}
+            if header.get("format") != FORMAT or header.get("version") not in READABLE_VERSIONS:
+                raise ConfigError(f"{path}: not a {FORMAT} file of version "
+                                  f"{' or '.join(str(v) for v in READABLE_VERSIONS)}")
+            opt = {k: f[k] for k in ("X0", "track_steps", "track_cpu_seconds", "profiles") if k in f.files}
             return cls(f["log_mass"], f["log_z"], f["phase"], f["lifetime"], f["table"], header, **opt)
 
 
 # ---------------------------------------------------------------------------- building
-def _one_track(M, X0, Z, kappa, options: dict, n_phase: int) -> PhaseTrack:
-    """Evolve and resample one track; a zero-age model that fails from a polytrope is reached by continuation."""
+def _one_track(M, X0, Z, kappa, options: dict, n_phase: int, profile_shape=(0, 0)) -> PhaseTrack:
+    """Evolve and resample one track; a zero-age model that fails from a polytrope is reached by continuation.
+
+    ``profile_shape`` (phases, radii): the track's radial profiles to keep, set as the attribute ``profiles``
+    of the returned track (:func:`radwalk.forward.grid_profiles.track_profiles`); (0, 0) keeps none."""
     from radwalk.physics.structure.evolution import evolve
     from radwalk.physics.structure.solver import solve_masses, solve_star
     from radwalk.physics.structure.tracks import phase_nodes, resample
@@ -705,10 +780,15 @@ def _one_track(M, X0, Z, kappa, options: dict, n_phase: int) -> PhaseTrack:
             zams = solve_masses([M], X0, Z, kappa, start=start, **solve)[0]
             track = evolve(M, X0, Z, kappa, X_end=X_end, start=zams, **opts)
     except ModelError as exc:
-        return PhaseTrack(M=M, X0=X0, Z=Z, phase=phase, lifetime=math.nan,
-                          values=np.full((phase.size, len(QUANTITIES)), np.nan), X_end=X_end, n_steps=0,
-                          stop_reason=f"zero-age model not solved: {exc}", cpu_seconds=time.process_time() - t0)
+        out = PhaseTrack(M=M, X0=X0, Z=Z, phase=phase, lifetime=math.nan,
+                         values=np.full((phase.size, len(QUANTITIES)), np.nan), X_end=X_end, n_steps=0,
+                         stop_reason=f"zero-age model not solved: {exc}", cpu_seconds=time.process_time() - t0)
+        if profile_shape[0]:
+            out.profiles = grid_profiles.missing_profiles(*profile_shape)
+        return out
     out = resample(track, phase, X_end)
+    if profile_shape[0]:
+        out.profiles = grid_profiles.track_profiles(track, *profile_shape, X_end=X_end)
     out.cpu_seconds = time.process_time() - t0
     return out
 
@@ -789,7 +869,8 @@ def build_grid(kappa, spec: GridSpec | None = None, *, workers: int | None = Non
     t_wall = time.perf_counter()
     results = {}
     runner = runner or local_tracks
-    jobs = [((i, j), (M, X0, Z, kappa, options, spec.n_phase)) for i, j, M, X0, Z in tasks]
+    shape = (spec.profile_phases, spec.profile_radii) if spec.profile_phases else (0, 0)
+    jobs = [((i, j), (M, X0, Z, kappa, options, spec.n_phase, shape)) for i, j, M, X0, Z in tasks]
     bar = tqdm(total=len(tasks), disable=not progress, desc="tracks", unit="track")
     try:
         for key, track in runner(_one_track, jobs, workers):
@@ -810,8 +891,14 @@ def _assemble(spec, kappa, results, key_extra, wall, workers) -> TrackGrid:
     lifetime = np.full((nm, nz), np.nan)
     steps = np.zeros((nm, nz), dtype=np.int32)
     cpu = np.zeros((nm, nz))
+    profiles = None
+    if spec.profile_phases:
+        profiles = np.full((nm, nz, spec.profile_phases, len(grid_profiles.FIELDS), spec.profile_radii), np.nan,
+                           dtype=np.float32)
     failed = []
     for (i, j), pt in results.items():
+        if profiles is not None:
+            profiles[i, j] = pt.profiles
         with np.errstate(divide="ignore", invalid="ignore"):
             table[i, j] = np.where(log, np.log10(pt.values), pt.values)
         lifetime[i, j] = pt.lifetime
@@ -824,12 +911,18 @@ def _assemble(spec, kappa, results, key_extra, wall, workers) -> TrackGrid:
     header["key"] = hashlib.sha256(json.dumps(identity, sort_keys=True).encode()).hexdigest()[:20]
     header["quantities"] = [{"name": q.name, "unit": q.unit, "log10": q.log, "description": q.description}
                             for q in QUANTITIES]
+    if profiles is not None:
+        header["profiles"] = {
+            "fields": [{"name": f.name, "unit": f.unit, "log10": f.log, "description": f.description}
+                       for f in grid_profiles.FIELDS],
+            "phases": "equally spaced 0..1", "radius": "r/R = sin(pi s / 2), s equally spaced 0..1",
+            "interpolation": "linear in age between a track's steps, in log M, log Z and phase between tracks"}
     header["created"] = time.strftime("%Y-%m-%dT%H:%M:%S%z")
     header["build"] = {"tracks": nm * nz, "cpu_seconds": float(cpu.sum()), "wall_seconds": float(wall),
                        "workers": int(workers), "failed": failed}
     X0 = np.array([spec.hydrogen(Z) for Z in metals])
     return TrackGrid(np.log10(masses), np.log10(metals), np.linspace(0.0, 1.0, spec.n_phase), lifetime, table,
-                     header, X0=X0, track_steps=steps, track_cpu_seconds=cpu)
+                     header, X0=X0, track_steps=steps, track_cpu_seconds=cpu, profiles=profiles)
 
 
 def cached_grid(kappa, spec: GridSpec | None = None, *, build: bool = True, workers: int | None = None,
@@ -968,6 +1061,8 @@ def describe(header: dict) -> str:
         f"  alpha_mlt {spec.get('alpha_mlt')}, overshoot {spec.get('alpha_ov')}, dXc {spec.get('dXc')}, "
         f"ends at X_c = {spec.get('X_end')}, {spec.get('n_mesh')} mesh points",
         f"  opacity {opac.get('law') or opac.get('name')} ({opac.get('module')})",
+        (f"  radial profiles at {spec.get('profile_phases')} phases on {spec.get('profile_radii')} points in r/R"
+         if header.get("profiles") else "  no radial profiles (the profile bands are solved)"),
         f"  built with {build.get('workers')} workers: {build.get('cpu_seconds', math.nan):.0f} s CPU, "
         f"{build.get('wall_seconds', math.nan):.0f} s wall; {len(build.get('failed', []))} failed tracks",
     ]

@@ -304,6 +304,20 @@ class StageSet:
         n = np.atleast_1d(np.asarray(values["mass"], dtype=float)).size
         return {name: np.broadcast_to(np.asarray(v, dtype=float), (n,)).copy() for name, v in out.items()}
 
+    def quick_bands(self, values: dict):
+        """The profile model's radial profiles for the bands without solving a structure, or None.
+
+        A profile model with quantities of its own may also provide ``band_profiles(M, X, Z, **params)``
+        (``opacity=`` if it takes it) returning ``(r_rel [g], fields)`` with ``fields`` name -> [n, g] for
+        every field of :data:`radwalk.results.products.BAND_FIELDS` in the transport stage's units (kappa
+        cm^2/g, mean free path cm, cumulative diffusion time yr, convective 0/1) plus ``mass`` (m/M), NaN for
+        samples it cannot place; or None when it has none at hand (then the bands are solved).
+        """
+        fn = getattr(self.profile, "band_profiles", None)
+        if not callable(fn):
+            return None
+        return self._component_call("profile", fn, values)
+
     def structure(self, values: dict, R, L) -> tuple[Profile, transport.Transport]:
         """Interior profile and transport quantities of stars with the given R (cm) and L (erg/s)."""
         M = np.atleast_1d(np.asarray(values["mass"], dtype=float)) * k.M_SUN
@@ -325,7 +339,7 @@ class StageSet:
 
     def validity_messages(self, values: dict, profile: Profile | None = None) -> list[str]:
         """Plain-language notes where a component is used outside its stated range."""
-        from radwalk.host.validity import fraction_outside, outside_validity
+        from radwalk.host.validity import outside_validity
 
         msgs = []
         for stage in ("relation", "profile"):
@@ -335,11 +349,27 @@ class StageSet:
             if msg:
                 msgs.append(msg)
         if profile is not None:
-            args = (self.opacity, profile.rho, profile.T, profile.X[:, None], profile.Z[:, None])
-            weights = np.maximum(np.diff(profile.m, axis=1, prepend=0.0), 0.0)
-            if fraction_outside(*args, weights)[0] > OPACITY_MASS_THRESHOLD:
-                msgs.append(outside_validity(*args, weights, name=f"opacity {self.opacity.name!r}"))
+            msgs += self.opacity_range_messages(profile.rho, profile.T, profile.X, profile.Z, profile.m)
         return msgs
+
+    def opacity_range_messages(self, rho, T, X, Z, m) -> list[str]:
+        """A note when more than :data:`OPACITY_MASS_THRESHOLD` of the stars' mass lies outside the opacity
+        law's stated (rho, T) range.
+
+        Parameters
+        ----------
+        rho, T : ndarray [n, g], g/cm^3 and K
+        X, Z : ndarray [n]
+        m : ndarray [n, g]
+            Mass inside each point, in any unit (only its increments weigh the points).
+        """
+        from radwalk.host.validity import fraction_outside, outside_validity
+
+        args = (self.opacity, rho, T, np.asarray(X, dtype=float)[:, None], np.asarray(Z, dtype=float)[:, None])
+        weights = np.maximum(np.diff(m, axis=1, prepend=0.0), 0.0)
+        if fraction_outside(*args, weights)[0] > OPACITY_MASS_THRESHOLD:
+            return [outside_validity(*args, weights, name=f"opacity {self.opacity.name!r}")]
+        return []
 
 
 # An opacity law is reported as out of range when more than this fraction of the star's mass

@@ -82,8 +82,9 @@ def derive(post: Posterior, samples: np.ndarray, structures: bool = True):
         Sampled parameters followed by those drawn from their priors.
     structures : bool
         False: where the profile model has quantities of its own and no plugin adds derived quantities, no
-        radial structure is solved (``bands`` and ``r_rel`` are then None): the scalars at the posterior
-        maximum need none, and a solved star costs seconds.
+        radial structure is solved (``bands`` and ``r_rel`` are then None unless the profile model stores
+        profiles, :meth:`radwalk.forward.stages.StageSet.quick_bands`): the scalars at the posterior maximum
+        need none, and a solved star costs seconds.
 
     Returns
     -------
@@ -94,8 +95,9 @@ def derive(post: Posterior, samples: np.ndarray, structures: bool = True):
         quantities; plugin quantities, which need the radial structure, are then
         given on the band samples only (NaN elsewhere).
     bands : dict
-        field -> [5, g], the :data:`radwalk.results.products.BAND_PERCENTILES` of each profile field
-        (over the band samples only, :func:`band_rows`, for such a profile model).
+        field -> [5, g], the :data:`radwalk.results.products.BAND_PERCENTILES` of each profile field: over
+        every sample when the profile model stores profiles (the track grid), else over the band samples
+        only (:func:`band_rows`) for a profile model with quantities of its own.
     r_rel : ndarray [g]
         The bands' grid in r/R (the samples' own when they share one, else their median grid:
         :func:`radwalk.results.products.profile_bands`).
@@ -112,14 +114,19 @@ def derive(post: Posterior, samples: np.ndarray, structures: bool = True):
         vals_ok = {kk: (v[ok] if np.ndim(v) else v) for kk, v in vals.items()}
         n_ok = int(ok.sum())
         quick = post.stages.quick_quantities(vals_ok) if n_ok else None
-        # A profile model with quantities of its own (read off a grid) gives them for every sample; its radial
-        # structures, slow to solve, are solved only for the evenly spaced few the bands need.
+        plugin_hooks = bool(post.stages.registry.derived_hooks().get_hookimpls())
+        # A profile model with quantities of its own (read off a grid) gives them for every sample, and may give
+        # the bands' radial profiles too (interpolated in the grid, for every sample); otherwise its structures,
+        # slow to solve, are solved only for the evenly spaced few the bands need.
+        grid_bands = _grid_bands(post, vals_ok) if quick is not None and not plugin_hooks else None
         rows = np.arange(n_ok) if quick is None else band_rows(n_ok, post.stages.profile)
         vals_band = vals_ok if quick is None else {kk: (v[rows] if np.ndim(v) else v) for kk, v in vals_ok.items()}
-        skip = not structures and quick is not None and not post.stages.registry.derived_hooks().get_hookimpls()
+        skip = quick is not None and not plugin_hooks and (grid_bands is not None or not structures)
         prof, tr = (None, None) if skip else post.stages.structure(vals_band, pred["radius"][ok][rows],
                                                                     pred["luminosity"][ok][rows])
     notes = [str(w.message) for w in caught]
+    if grid_bands is not None:
+        notes += grid_bands[2]
     notes += post.stages.validity_messages(vals_ok, prof)
     derived = {}
     for key in ("radius", "luminosity", "teff"):
@@ -129,6 +136,8 @@ def derive(post: Posterior, samples: np.ndarray, structures: bool = True):
         derived["X"] = np.broadcast_to(np.asarray(vals_ok["X"], dtype=float), (n_ok,)).copy()
     for key, v in (tr.scalars if quick is None else quick).items():
         derived[key] = v * (CATALOGUE[key].factor if key in CATALOGUE else 1.0)
+    if grid_bands is not None:
+        return derived, grid_bands[1], grid_bands[0], notes, ok
     if prof is None:
         return derived, None, None, notes, ok
     for key, v in plugin_quantities(post.stages, prof, vals_band, tr, set(derived)).items():
@@ -141,6 +150,31 @@ def _bands_of(prof, tr):
     """(r_rel [g], bands: field -> [5, g]) of solved structures."""
     fields = {"rho": prof.rho, "T": prof.T, "convective": np.asarray(tr.convective, dtype=float), **tr.fields}
     return profile_bands(prof.r / prof.R[:, None], {f: fields[f] for f in BAND_FIELDS})
+
+
+def _grid_bands(post: Posterior, vals_ok: dict):
+    """Profile bands over every sample from the profile model's stored profiles, or None when it has none.
+
+    Returns
+    -------
+    (r_rel [g], bands: field -> [5, g], notes: list of str) or None
+        The notes say where more of the stars' mass than the stated threshold lies outside the opacity law's
+        range, as for solved structures.
+    """
+    out = post.stages.quick_bands(vals_ok)
+    if out is None:
+        return None
+    r_rel, fields = out
+    good = np.all(np.isfinite(fields["rho"]) & np.isfinite(fields["T"]), axis=1)
+    if not good.any():
+        return None
+    fields = {name: np.asarray(v, dtype=float)[good] for name, v in fields.items()}
+    n = int(good.sum())
+    X = np.broadcast_to(np.asarray(vals_ok["X"], dtype=float), (good.size,))[good]
+    Z = np.broadcast_to(np.asarray(vals_ok["Z"], dtype=float), (good.size,))[good]
+    notes = post.stages.opacity_range_messages(fields["rho"], fields["T"], X, Z, fields["mass"])
+    grid, bands = profile_bands(np.broadcast_to(r_rel, (n, r_rel.size)), {f: fields[f] for f in BAND_FIELDS})
+    return grid, bands, notes
 
 
 def band_structures(post: Posterior, samples: np.ndarray):

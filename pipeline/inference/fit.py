@@ -176,8 +176,9 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     indep = post.draw_independent(np.random.default_rng(prior_seed), flat.shape[0], theta=flat)
     flat = np.column_stack([flat, indep])
     idx = _evenly(flat.shape[0], config.sampler.derived_samples)
-    # Scalars only where the profile model has its own (the track grid): the bands' solved structures cost
-    # seconds each and are made when the figures ask for them (FitProducts.ensure_bands).
+    # No solved structure where the profile model has its own scalars (the track grid): its bands come from its
+    # stored profiles, or, without them, from structures solved (seconds each) only when the figures ask for them
+    # (FitProducts.ensure_bands).
     derived, bands, r_rel, notes, ok = derive(post, flat[idx], structures=False)
     pval = ppc_pvalue(post, flat[idx], np.random.default_rng(ppc_seed))
 

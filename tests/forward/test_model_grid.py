@@ -85,6 +85,39 @@ def test_interpolation_at_a_node_returns_the_node(tiny):
             np.testing.assert_allclose(got["main_sequence_lifetime"], tiny.lifetime[i, j], rtol=1e-12)
 
 
+def test_stored_profiles_at_the_nodes(tiny, tmp_path):
+    # The profiles the builder keeps: one per profile phase, on the stored r/R points, and read back from a file.
+    from radwalk.forward import grid_profiles as gp
+
+    spec = TINY
+    assert tiny.profiles.shape == (3, 2, spec.profile_phases, len(gp.FIELDS), spec.profile_radii)
+    assert tiny.profiles.dtype == np.float32 and np.isfinite(tiny.profiles).all()
+    again = mg.TrackGrid.load(tiny.save(tmp_path / "again.npz"))
+    np.testing.assert_array_equal(again.profiles, tiny.profiles)
+    names = [f.name for f in gp.FIELDS]
+    for i in range(3):
+        for j in range(2):
+            life = tiny.lifetime[i, j]
+            phases = np.linspace(0.0, 1.0, spec.profile_phases)
+            M = np.full(phases.size, 10.0 ** tiny.log_mass[i] * const.M_SUN)
+            r_rel, got = tiny.profiles_at(M, 10.0 ** tiny.log_z[j], phases * life)
+            np.testing.assert_array_equal(r_rel, gp.radius_nodes(spec.profile_radii))
+            # at a node the interpolation is the stored profile itself
+            stored = tiny.profiles[i, j]
+            np.testing.assert_allclose(np.log10(got["rho"]), stored[:, names.index("rho")], rtol=1e-6)
+            np.testing.assert_array_equal(got["convective"], stored[:, names.index("convective")] >= 0.5)
+            # The first-passage time to the surface is the star's photon diffusion time, the scalar the grid
+            # stores (the same integral, (1/c) int kappa rho r dr, KWW 2012 sect. 5.1 and radwalk DESIGN
+            # sect. 5).  At phase 0 both are the zero-age model's own, so they agree to float32 storage.
+            node = tiny.node(i, j)
+            assert got["diffusion_time_cumulative"][0, -1] == pytest.approx(node["diffusion_time"][0], rel=1e-5)
+            # mass coordinate 0 at the centre, 1 at the photosphere, increasing outwards
+            assert np.all(got["mass"][:, 0] == 0.0) and np.allclose(got["mass"][:, -1], 1.0, atol=1e-6)
+            assert np.all(np.diff(got["mass"], axis=1) >= 0)
+    # a grid without one mass node keeps the others' profiles
+    assert tiny.without("mass", 1).profiles.shape[0] == 2
+
+
 def test_leave_one_track_out_on_the_tiny_grid(tiny):
     loo = mg.leave_one_out(tiny, "mass")
     print("\nleave-one-mass-out on 3 x 2 tracks (spacing 0.15 dex, 0.3 dex once one is left out):")

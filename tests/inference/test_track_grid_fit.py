@@ -11,6 +11,7 @@ import pytest
 
 from radwalk import constants as k
 from radwalk.errors import ConfigError, ModelError
+from radwalk.forward.model_grid import TrackGrid
 from radwalk.host.config import RunConfig, SamplerConfig
 from radwalk.host.params import Prior
 from radwalk.inference.derived import band_rows, band_structures, check_reachable, derive
@@ -92,16 +93,19 @@ def test_a_star_below_the_zero_age_main_sequence_is_refused_in_those_words(small
     assert msg.startswith("below the zero-age main sequence for every allowed composition: "), msg
 
 
-def test_derived_quantities_come_from_the_grid_and_bands_from_few_solved_stars(small_track_grid, truth):
+def _six_samples(post, truth):
+    """Six posterior-like samples around the truth, 1.25-1.35 M_sun at the true Z and age, [6, ndim]."""
+    theta = np.tile([truth[n] if n in truth else 0.7 for n in post.names], (6, 1))
+    theta[:, post.names.index("mass")] = np.linspace(1.25, 1.35, 6)
+    return theta
+
+
+def test_derived_quantities_and_bands_come_from_the_grid(small_track_grid, truth):
     cfg = _config(small_track_grid, profile="track-grid")
     stages = stages_for(cfg)
     star = _observed(stages, truth)
     post = Posterior(stages, star.observations(), cfg)
-    # six posterior-like samples around the truth; the profile solves the structure of band_samples of them
-    theta = np.tile([truth[n] if n in truth else 0.7 for n in post.names], (6, 1))
-    theta[:, post.names.index("mass")] = np.linspace(1.25, 1.35, 6)
-    stages.profile.band_samples = 2  # this configured copy only
-    assert band_rows(6, stages.profile).tolist() == [0, 5]
+    theta = _six_samples(post, truth)
     derived, bands, r_rel, notes, ok = derive(post, theta)
     assert ok.all()
     for name in ("central_hydrogen", "main_sequence_lifetime", "diffusion_time", "kelvin_helmholtz_time",
@@ -115,13 +119,38 @@ def test_derived_quantities_come_from_the_grid_and_bands_from_few_solved_stars(s
     Y0 = 1.0 - X0 - truth["Z"]
     # fully ionised gas: 1 / mu = 2 X + 3 Y / 4 + Z / 2 (Kippenhahn, Weigert & Weiss 2012, sect. 4.2)
     assert derived["mu"] == pytest.approx(np.full(6, 1.0 / (2.0 * X0 + 0.75 * Y0 + 0.5 * truth["Z"])))
-    assert bands["T"].shape[1] == r_rel.size
-    # Without structures (what a fit does until its figures are drawn) the scalars are the same and the bands
-    # come later from the same band stars.
-    quick, none_bands, none_r, _, quick_ok = derive(post, theta, structures=False)
-    assert none_bands is None and none_r is None and quick_ok.all()
+    # The bands are the grid's stored profiles of all six samples: their median central density lies between
+    # the samples' own (the grid's scalars, cubic in log M, against the profiles' linear interpolation).
+    assert bands["T"].shape == (5, r_rel.size) and r_rel[0] == 0.0 and r_rel[-1] == 1.0
+    rho_c = np.sort(derived["central_density"])
+    assert rho_c[0] * 0.98 < bands["rho"][2, 0] < rho_c[-1] * 1.02
+    # Without structures (what a fit does before its figures) nothing changes: no structure is solved either way.
+    quick, quick_bands, quick_r, _, quick_ok = derive(post, theta, structures=False)
+    assert quick_ok.all()
+    np.testing.assert_array_equal(quick_r, r_rel)
     for name, values in derived.items():
         np.testing.assert_array_equal(quick[name], values, err_msg=name)
+    for name, band in bands.items():
+        np.testing.assert_array_equal(quick_bands[name], band, err_msg=name)
+
+
+def test_a_grid_without_profiles_solves_few_band_stars(small_track_grid, truth, tmp_path):
+    # A grid file of version 1 carries no profiles: the bands' structures are then solved for band_samples of
+    # the samples, and only when asked (the figures).
+    full = TrackGrid.load(small_track_grid)
+    header = {key: v for key, v in full.header.items() if key != "profiles"} | {"version": 1}
+    bare = TrackGrid(full.log_mass, full.log_z, full.phase, full.lifetime, full.table, header, X0=full.X0)
+    path = bare.save(tmp_path / "no-profiles.npz")
+    cfg = _config(str(path), profile="track-grid")
+    stages = stages_for(cfg)
+    post = Posterior(stages, _observed(stages, truth).observations(), cfg)
+    theta = _six_samples(post, truth)
+    stages.profile.band_samples = 2  # this configured copy only
+    assert band_rows(6, stages.profile).tolist() == [0, 5]
+    derived, bands, r_rel, notes, ok = derive(post, theta)
+    assert ok.all() and bands["T"].shape[1] == r_rel.size
+    quick, none_bands, none_r, _, quick_ok = derive(post, theta, structures=False)
+    assert none_bands is None and none_r is None and quick_ok.all()
     later_r, later_bands, _ = band_structures(post, theta)
     np.testing.assert_array_equal(later_r, r_rel)
     for name, band in bands.items():
@@ -130,7 +159,7 @@ def test_derived_quantities_come_from_the_grid_and_bands_from_few_solved_stars(s
 
 @pytest.mark.slow
 def test_whole_fit_with_the_track_grid_stages(small_track_grid, truth, rng):
-    # fit_one end to end with both track-grid stages: 20 band stars solved (about 1 min of CPU)
+    # fit_one end to end with both track-grid stages
     cfg = _config(small_track_grid, profile="track-grid")
     star = _observed(stages_for(cfg), truth, rng)
     summary, products = fit_one(star, cfg, seed_for(9, star.id))
