@@ -4,8 +4,9 @@ Per star (from :class:`radwalk.results.products.FitProducts`): a corner plot of 
 parameters, a corner plot of the transport timescales, the walkers' traces, the
 radial profile with credible bands, a posterior-predictive check of R, L and
 T_eff and, when several opacity laws were fitted, their comparison.  Per
-catalog (from the per-star summary documents): an HR diagram and the
-timescales against mass.
+catalog (from the per-star summary documents): an HR diagram, the
+timescales against mass and, for an invented catalog with its true
+parameters, the recovered against the true mass.
 
 Every builder returns a :class:`matplotlib.figure.Figure` that belongs to no
 pyplot window, so nothing is kept alive after saving and nothing depends on an
@@ -919,24 +920,80 @@ def timescales_vs_mass_figure(summaries: list) -> Figure:
     return fig
 
 
-def catalog_figures(summaries: list) -> dict:
+def mass_recovery_figure(rows: list) -> Figure:
+    """Recovered (posterior median, 68 % and 95 % intervals) against true mass, with the 1:1 line.
+
+    Parameters
+    ----------
+    rows : list of dict
+        One per star (radwalk.report.truths.mass_recovery): ``truth``, ``p16``, ``p50``, ``p84``,
+        ``p2_5``, ``p97_5`` [M_sun] (the 95 % ends NaN when unknown), ``ok`` (converged), ``id``.
+
+    Returns
+    -------
+    Figure
+    """
+    with matplotlib.rc_context(STYLE):
+        fig = Figure(figsize=(6.5, 6), layout="constrained")
+        ax = fig.add_subplot()
+        ax.set_xlabel(r"true mass $M\,[M_\odot]$")
+        ax.set_ylabel(r"recovered mass $M\,[M_\odot]$ (posterior median)")
+        ax.set_title("recovered against true mass")
+        if not rows:
+            _empty(ax, "no fitted star with a true mass")
+            return fig
+        a = np.array([[r["truth"], r["p50"], r["p16"], r["p84"], r["p2_5"], r["p97_5"], bool(r["ok"])]
+                      for r in rows], dtype=float)
+        t, mid = a[:, 0], a[:, 1]
+        has95 = np.isfinite(a[:, 4]) & np.isfinite(a[:, 5])
+        if has95.any():
+            b = a[has95]
+            ax.errorbar(b[:, 0], b[:, 1], yerr=[np.maximum(b[:, 1] - b[:, 4], 0), np.maximum(b[:, 5] - b[:, 1], 0)],
+                        fmt="none", ecolor=POSTERIOR, alpha=0.35, lw=1, capsize=0, zorder=2, label="95 % interval")
+        conv = a[:, 6].astype(bool)
+        for sel, face, label in ((conv, POSTERIOR, "median, 68 % interval"),
+                                 (~conv, "white", "median, 68 % interval (not converged)")):
+            if sel.any():
+                b = a[sel]
+                ax.errorbar(b[:, 0], b[:, 1], yerr=[np.maximum(b[:, 1] - b[:, 2], 0), np.maximum(b[:, 3] - b[:, 1], 0)],
+                            fmt="o", ms=5, color=POSTERIOR, mfc=face, lw=1.6, capsize=2, zorder=3, label=label)
+        ends = np.concatenate([t, mid, a[:, 2:6][np.isfinite(a[:, 2:6])]])
+        lo, hi = float(np.min(ends)), float(np.max(ends))
+        pad = 0.05 * (hi - lo) if hi > lo else 0.1 * max(abs(hi), 1.0)
+        lo, hi = lo - pad, hi + pad
+        ax.plot([lo, hi], [lo, hi], color="0.4", ls="--", lw=1, zorder=1, label="1:1 (recovered = true)")
+        ax.set_xlim(lo, hi)
+        ax.set_ylim(lo, hi)
+        ax.set_aspect("equal", adjustable="box")
+        ax.legend(loc="upper left", frameon=True, framealpha=0.9)
+        ax.grid(alpha=0.25, lw=0.5)
+    return fig
+
+
+def catalog_figures(summaries: list, recovery: list | None = None) -> dict:
     """The catalog's figures, not saved.
 
     Parameters
     ----------
     summaries : list of dict
         Per-star summary documents (summary.json), failed stars included.
+    recovery : list of dict, optional
+        Recovered against true mass (radwalk.report.truths.mass_recovery); the figure is drawn only when
+        some star has a true mass.
 
     Returns
     -------
     dict
-        {"hr_diagram": Figure, "timescales_vs_mass": Figure}.
+        {"hr_diagram": Figure, "timescales_vs_mass": Figure} and "mass_recovery" with truths.
     """
-    return {"hr_diagram": hr_diagram_figure(summaries), "timescales_vs_mass": timescales_vs_mass_figure(summaries)}
+    figures = {"hr_diagram": hr_diagram_figure(summaries), "timescales_vs_mass": timescales_vs_mass_figure(summaries)}
+    if recovery:
+        figures["mass_recovery"] = mass_recovery_figure(recovery)
+    return figures
 
 
-def write_catalog_plots(summaries: list, folder) -> dict:
-    """Writes hr_diagram.png and timescales_vs_mass.png into ``folder``.
+def write_catalog_plots(summaries: list, folder, recovery: list | None = None) -> dict:
+    """Writes hr_diagram.png, timescales_vs_mass.png and, with truths, mass_recovery.png into ``folder``.
 
     Parameters
     ----------
@@ -944,6 +1001,8 @@ def write_catalog_plots(summaries: list, folder) -> dict:
         Per-star summary documents (summary.json), failed stars included.
     folder : str or Path
         The report folder.
+    recovery : list of dict, optional
+        Recovered against true mass (see :func:`catalog_figures`).
 
     Returns
     -------
@@ -952,8 +1011,8 @@ def write_catalog_plots(summaries: list, folder) -> dict:
     """
     folder = Path(folder)
     out = {}
-    for kind, builder in (("hr_diagram", hr_diagram_figure), ("timescales_vs_mass", timescales_vs_mass_figure)):
+    for kind, fig in catalog_figures(summaries, recovery).items():
         name = f"{kind}.png"
-        save_figure(builder(summaries), folder / name)
+        save_figure(fig, folder / name)
         out[kind] = name
     return out

@@ -12,8 +12,9 @@ The pages are Jinja2 templates with autoescape (``templates/*.html.j2``); the
 style sheet and the sorting script are files beside them, inlined into each
 page, the script allowed by the sha256 of the file's text.  This module reads
 the run folder into plain values for the templates; the number and unit
-formatting (:func:`num`, :func:`interval`, :func:`unit_html`) are its template
-filters.
+formatting (:func:`num`, :func:`interval`, :func:`like`, :func:`plus_minus`,
+:func:`unit_html`) are its template filters; a value with an interval is shown
+to the digits its interval supports.
 
 Layout written::
 
@@ -21,6 +22,7 @@ Layout written::
     DIR/report/<safe-id>.html      one page per star (safe id = its folder under stars/)
     DIR/report/hr_diagram.png      catalog plots (radwalk.report.figures.write_catalog_plots)
     DIR/report/timescales_vs_mass.png
+    DIR/report/mass_recovery.png   only with the catalog's true masses (radwalk.report.truths)
 """
 
 from __future__ import annotations
@@ -37,24 +39,28 @@ from functools import lru_cache
 from pathlib import Path
 from urllib.parse import quote
 
+import numpy as np
 from jinja2 import Environment, FileSystemLoader, StrictUndefined
 from markupsafe import Markup, escape
 
 from radwalk import __version__
 from radwalk.errors import ConfigError
 from radwalk.forward.quantities import DERIVED_GROUPS, OBS_SHORT, PARAM_SYMBOL, PARAM_WORDS, UNIT_HTML, description
+from radwalk.report.truths import mass_recovery
 from radwalk.results.document import PPC_POOR
 from radwalk.results.files import write_text
-from radwalk.results.layout import safe_folder_name
+from radwalk.results.layout import CHAIN_FILE, RUN_TOML, SUMMARY_ECSV, SUMMARY_FITS, safe_folder_name
 
 if sys.version_info >= (3, 11):
     import tomllib
 else:  # pragma: no cover
     import tomli as tomllib
 
-STATUSES = ("ok", "not-converged", "failed", "pending", "unreadable")
+# The statuses a star is shown with; "poor-fit" is a converged ("ok") star whose posterior-predictive
+# check failed (summary.json keeps its status "ok" and says so in a warning).
+STATUSES = ("ok", "poor-fit", "not-converged", "failed", "pending", "unreadable")
 STATUS_TEXT = {
-    "ok": "ok", "not-converged": "not converged", "failed": "failed",
+    "ok": "ok", "poor-fit": "poor fit", "not-converged": "not converged", "failed": "failed",
     "pending": "not finished", "unreadable": "unreadable",
 }
 
@@ -80,6 +86,14 @@ CATALOG_PLOTS = {
                            "intervals.", "timescales_vs_mass.png"),
 }
 
+# Catalog plots drawn only when the catalog's true parameters are known (radwalk.report.truths).
+TRUTH_PLOTS = {
+    "mass_recovery": ("Recovered against true mass",
+                      "Posterior median of each star's mass with its 68 % (dark) and 95 % (light) intervals against "
+                      "the true mass the invented star was made with; the dashed line is recovered = true.  Open "
+                      "circles did not converge.", "mass_recovery.png"),
+}
+
 # Observations table rows: (key, words, unit); the symbol after the words is the catalogue's (OBS_SHORT).
 OBSERVABLE_ROWS = (("radius", "Radius", "R_sun"), ("luminosity", "Luminosity", "L_sun"),
                    ("teff", "Effective temperature", "K"))
@@ -102,6 +116,11 @@ CATALOG_COLUMNS = (
 # Columns shown only when some star has a value (a polytrope has no age, lifetime or evolved centre).
 OPTIONAL_COLUMNS = ("age", "main_sequence_lifetime", "central_hydrogen")
 
+# The run's files the catalog page links for download: (name, what it holds).
+DOWNLOADS = ((SUMMARY_ECSV, "the table of stars (ECSV: plain text with units, read by astropy)"),
+             (SUMMARY_FITS, "the same table as FITS"),
+             (RUN_TOML, "the run's configuration and provenance"))
+
 # The page templates, the style sheet and the sorting script (package data).
 TEMPLATES = Path(__file__).with_name("templates")
 
@@ -115,6 +134,22 @@ class StarEntry:
     status: str  # ok, not-converged, failed, pending (no summary.json yet), unreadable
     summary: dict | None
     problem: str = ""  # why a pending / unreadable star has no summary
+
+    @property
+    def ppc_pvalue(self) -> float | None:
+        """The posterior-predictive p-value of a fitted star, None when it has none."""
+        p = (self.summary or {}).get("ppc_pvalue") if self.status != "failed" else None
+        return float(p) if _finite(p) else None
+
+    @property
+    def poor_fit(self) -> bool:
+        """Its posterior-predictive check failed (p-value under PPC_POOR): never shown as a plain "ok"."""
+        return self.ppc_pvalue is not None and self.ppc_pvalue < PPC_POOR
+
+    @property
+    def shown_status(self) -> str:
+        """The status its badge and table row show: a converged star whose check failed is "poor-fit"."""
+        return "poor-fit" if self.status == "ok" and self.poor_fit else self.status
 
     @property
     def page(self) -> str | None:
@@ -263,8 +298,46 @@ def num(x, digits: int = 4) -> Markup:
     return Markup(text.replace("-", "−") + _times_ten(e))
 
 
+def _precision(p50: float, lo: float, hi: float) -> tuple[int, int] | None:
+    """(power of ten factored out, decimals after it) that a value with errors -lo/+hi supports.
+
+    Two significant digits of the smaller error, but never more than two beyond the larger one's (common
+    practice, no source): +0.012/-0.011 keeps three decimals, +90000/-14000 rounds to thousands (negative
+    decimals).  An error under a hundredth of the other (a posterior piled at a bound) does not count.
+    None when neither error is positive.
+    """
+    # the median sets the power of ten unless it is tiny beside the upper end (a posterior piled at 0)
+    top = max(abs(p50 - lo), abs(p50), abs(p50 + hi))
+    e = _exponent(p50 if abs(p50) * 100 >= top else top)
+    errs = [v / 10.0**e for v in (lo, hi) if _finite(v) and v > 0]
+    if not errs:
+        return None
+    small, large = min(errs), max(errs)
+    if small < large / 100:  # a posterior piled at a bound (a fraction at 1): the one real error sets the digits
+        small = large
+    need_small = 1 - math.floor(math.log10(small))
+    need_large = 1 - math.floor(math.log10(large))
+    return e, min(min(need_small, need_large + 2), 6)
+
+
+def _fixed(x: float, e: int, digits: int) -> str:
+    """``x / 10**e`` with ``digits`` decimals; negative ``digits`` round to tens, hundreds, ..."""
+    m = x / 10.0**e
+    if digits < 0:  # round big numbers to the error's digits rather than print noise
+        step = 10.0 ** (-digits)
+        m = round(m / step) * step
+        digits = 0
+    text = f"{m:.{digits}f}"
+    if text.startswith("-") and float(text) == 0:
+        text = text[1:]
+    return text.replace("-", "−")
+
+
 def interval(d: dict | None) -> Markup:
-    """Median with the 16th and 84th percentiles as -/+ offsets, as HTML; the template filter ``interval``."""
+    """Median with the 16th and 84th percentiles as -/+ offsets, as HTML; the template filter ``interval``.
+
+    The median and the offsets are rounded to the digits the offsets support (:func:`_precision`).
+    """
     if not d:
         return DASH
     p16, p50, p84 = d.get("p16"), d.get("p50"), d.get("p84")
@@ -272,26 +345,37 @@ def interval(d: dict | None) -> Markup:
         return DASH
     if not (_finite(p16) and _finite(p84)):
         return num(p50)
-    # the median sets the power of ten unless it is tiny beside the upper end (a posterior piled at 0)
-    top = max(abs(p16), abs(p50), abs(p84))
-    e = _exponent(p50 if abs(p50) * 100 >= top else top)
-    s = 10.0**e
-    m, lo, hi = p50 / s, (p50 - p16) / s, (p84 - p50) / s
-    errs = [v for v in (lo, hi) if v > 0]
-    if not errs:
+    prec = _precision(p50, p50 - p16, p84 - p50)
+    if prec is None:
         return num(p50)
-    # two significant digits of the smaller error, but never more than two beyond the larger one's
-    need_small = 1 - math.floor(math.log10(min(errs)))
-    need_large = 1 - math.floor(math.log10(max(errs)))
-    digits = min(need_small, need_large + 2)
-    if digits < 0:  # round big numbers to the error's digits rather than print noise
-        step = 10.0 ** (-digits)
-        m, lo, hi = (round(v / step) * step for v in (m, lo, hi))
-        digits = 0
-    digits = min(digits, 6)
-    body = (f"{m:.{digits}f}".replace("-", "−")
-            + f'<span class="pm"><sup>+{hi:.{digits}f}</sup><sub>−{lo:.{digits}f}</sub></span>')
+    e, digits = prec
+    body = (_fixed(p50, e, digits) + f'<span class="pm"><sup>+{_fixed(p84 - p50, e, digits)}</sup>'
+            f'<sub>−{_fixed(p50 - p16, e, digits)}</sub></span>')
     return Markup(body + _times_ten(e))
+
+
+def like(x, d: dict | None) -> Markup:
+    """A number of a quantity (a percentile, the MAP) to the precision of the quantity's interval ``d``;
+    as :func:`num` when ``d`` has no interval.  The template filter ``like``."""
+    if not _finite(x):
+        return num(x)
+    d = d or {}
+    p16, p50, p84 = d.get("p16"), d.get("p50"), d.get("p84")
+    prec = _precision(p50, p50 - p16, p84 - p50) if all(_finite(v) for v in (p16, p50, p84)) else None
+    if prec is None:
+        return num(x)
+    e, digits = prec
+    return Markup(_fixed(x, e, digits) + _times_ten(e))
+
+
+def plus_minus(value, error) -> Markup:
+    """A measurement "value ± error" as HTML, the value to the error's precision; the filter ``pm``."""
+    if not _finite(value):
+        return DASH
+    if not (_finite(error) and error > 0):
+        return num(value)
+    e, digits = _precision(value, error, error)
+    return Markup(f"{_fixed(value, e, digits)} ± {_fixed(error, e, digits)}{_times_ten(e)}")
 
 
 def unit_html(unit: str | None) -> Markup:
@@ -319,7 +403,7 @@ def _environment() -> Environment:
     # Autoescape everywhere: text from the catalog or the files is escaped unless a filter marked it as HTML.
     env = Environment(loader=FileSystemLoader(TEMPLATES), autoescape=True, undefined=StrictUndefined,
                       trim_blocks=True, lstrip_blocks=True, keep_trailing_newline=True)
-    env.filters.update(num=num, interval=interval, unit=unit_html)
+    env.filters.update(num=num, interval=interval, like=like, pm=plus_minus, unit=unit_html)
     env.globals.update(href=_href, status_text=STATUS_TEXT, version=__version__,
                        css=Markup(_asset("report.css")))
     return env
@@ -344,7 +428,7 @@ def _render(template: str, script: str = "", **context) -> str:
 
 
 PROVENANCE_NOT_VERSIONS = ("seed", "catalog", "catalog_sha256", "config_sha256", "plugins", "plugin_sha256",
-                           "executor", "workers", "first_started", "started", "finished")
+                           "executor", "workers", "first_started", "started", "finished", "resumed_stars")
 CONFIG_SECTIONS = ("stages", "settings", "priors", "sampler", "metallicity", "columns", "run")
 
 
@@ -368,7 +452,6 @@ def _run_info(out_dir: Path, run: dict, run_text: str, problem: str, entries) ->
             continue
         text = ", ".join(f"{k} = {v}" for k, v in value.items()) if isinstance(value, dict) else str(value)
         other.append((str(key).replace("_", " ").capitalize(), text))
-    first = prov.get("first_started")
     return {
         "folder": str(out_dir.resolve()),
         "catalog": str(prov["catalog"]) if prov.get("catalog") else "",
@@ -386,7 +469,7 @@ def _run_info(out_dir: Path, run: dict, run_text: str, problem: str, entries) ->
         "ran": bool(prov.get("started") or prov.get("finished")),
         "started": prov.get("started", "?"),
         "finished": prov.get("finished", "?"),
-        "resumed_from": first if first and first != prov.get("started") else None,
+        **_resumed(prov),
         "versions": versions,
         "other": other,
         "problem": problem,
@@ -394,7 +477,27 @@ def _run_info(out_dir: Path, run: dict, run_text: str, problem: str, entries) ->
     }
 
 
-def _catalog_plots(out_dir: Path, report_dir: Path, entries) -> dict:
+def _resumed(prov: dict) -> dict:
+    """Whether the run went on from an earlier one, from run.toml's provenance.
+
+    ``resumed_stars`` counts the stars an earlier run had finished; a fresh run writes 0.  The start times
+    alone cannot tell: a fresh run stamps its state a moment after its start, and the two seconds differ now
+    and then.  A run.toml written before the count was kept only shows when the folder was first used.
+    """
+    first = prov.get("first_started")
+    count = prov.get("resumed_stars")
+    if isinstance(count, int) and not isinstance(count, bool):
+        return {"resumed": count if count > 0 else 0, "first_started": first if count > 0 and first else None}
+    differs = bool(first) and first != prov.get("started")
+    return {"resumed": None, "first_started": first if differs else None}
+
+
+def _downloads(out_dir: Path) -> list[tuple[str, str, str]]:
+    """(name, what it holds, link) of the run's tables and config that exist, linked from report/."""
+    return [(name, what, _href("..", name)) for name, what in DOWNLOADS if (out_dir / name).is_file()]
+
+
+def _catalog_plots(out_dir: Path, report_dir: Path, entries, recovery: list | None = None) -> dict:
     """Draws the catalog plots; (figures: src, title, caption; src empty when no image was written), note."""
     summaries = [e.summary for e in entries if e.summary is not None]
     made: dict = {}
@@ -405,11 +508,11 @@ def _catalog_plots(out_dir: Path, report_dir: Path, entries) -> dict:
         note = f"Catalog plots are not available: the plotting module could not be loaded ({exc})."
     else:
         try:
-            made = dict(write_catalog_plots(summaries, report_dir) or {})
+            made = dict(write_catalog_plots(summaries, report_dir, recovery or None) or {})
         except Exception as exc:  # noqa: BLE001 - a failed plot must not cost the whole report
             note = f"Catalog plots could not be drawn: {type(exc).__name__}: {exc}"
     figures = []
-    kinds = list(CATALOG_PLOTS) + [k for k in made if k not in CATALOG_PLOTS]
+    kinds = list(CATALOG_PLOTS) + [k for k in made if k not in CATALOG_PLOTS and k not in TRUTH_PLOTS]
     for kind in kinds:
         title, caption, default = CATALOG_PLOTS.get(kind, (kind.replace("_", " ").capitalize(), "", ""))
         name = str(made.get(kind, default))
@@ -418,7 +521,11 @@ def _catalog_plots(out_dir: Path, report_dir: Path, entries) -> dict:
             figures.append({"src": _href(name), "title": title, "caption": caption})
         elif not note:
             figures.append({"src": "", "title": title, "caption": caption})
-    return {"figures": figures, "note": note}
+    truth = []  # drawn only for a catalog with its true parameters, shown in their own block
+    for kind, (title, caption, name) in TRUTH_PLOTS.items():
+        if kind in made and (report_dir / name).is_file():
+            truth.append({"src": _href(name), "title": title, "caption": caption})
+    return {"figures": figures, "note": note, "truth": truth}
 
 
 def _catalog_columns(entries) -> tuple:
@@ -443,7 +550,8 @@ def _catalog_rows(entries, columns=CATALOG_COLUMNS) -> list[dict]:
             d = (s.get(where) or {}).get(key) if e.status != "failed" else None
             cells.append((_sort_value((d or {}).get("p50")), d))
         nwarn = len(s.get("warnings") or []) if e.summary and e.status != "failed" else ""
-        rows.append({"number": i, "id": e.id, "page": e.page, "status": e.status, "cells": cells,
+        rows.append({"number": i, "id": e.id, "page": e.page, "status": e.shown_status, "ppc": e.ppc_pvalue,
+                     "cells": cells,
                      "warnings": nwarn, "reason": str(s.get("reason") or e.problem)})
     return rows
 
@@ -451,14 +559,16 @@ def _catalog_rows(entries, columns=CATALOG_COLUMNS) -> list[dict]:
 def catalog_page(out_dir: Path, report_dir: Path, entries) -> str:
     """The catalog page (index.html) as HTML; draws the catalog plots into ``report_dir`` on the way."""
     run, run_text, problem = read_run_toml(out_dir)
-    counts = {s: sum(e.status == s for e in entries) for s in STATUSES}
+    counts = {s: sum(e.shown_status == s for e in entries) for s in STATUSES}
     columns = _catalog_columns(entries)
+    recovery, truths = mass_recovery(out_dir, run, entries)
     return _render(
         "catalog.html.j2", script="sort.js",
         run_name=out_dir.resolve().name, n_stars=len(entries),
         counts=[(s, counts[s]) for s in STATUSES if counts[s] or s in ("ok", "not-converged", "failed")],
         run=_run_info(out_dir, run, run_text, problem, entries),
-        plots=_catalog_plots(out_dir, report_dir, entries),
+        plots=_catalog_plots(out_dir, report_dir, entries, recovery), truths=truths,
+        downloads=_downloads(out_dir),
         columns=[(symbol, unit) for symbol, unit, _, _ in columns],
         rows=_catalog_rows(entries, columns),
     )
@@ -658,6 +768,47 @@ def _headline(s: dict) -> list[tuple]:
     return items
 
 
+def _quantiles(values) -> dict | None:
+    """p16, p50, p84 of the finite values, as summary.json gives a quantity (None when none is finite)."""
+    v = np.asarray(values, dtype=float)
+    v = v[np.isfinite(v)]
+    if not v.size:
+        return None
+    p16, p50, p84 = np.percentile(v, (16.0, 50.0, 84.0))
+    return {"p16": float(p16), "p50": float(p50), "p84": float(p84)}
+
+
+def _time_ratio(out_dir: Path, e: StarEntry) -> dict | None:
+    """The thermal over the photon diffusion time of a star: its posterior, or the ratio of the medians.
+
+    The posterior of the ratio comes from chain.h5's derived samples (both times at the same rows); without
+    them the percentiles in summary.json cannot give one, and only the ratio of the two medians is shown
+    (``samples`` False).
+    """
+    derived = (e.summary or {}).get("derived") or {}
+    th, diff = derived.get("energy_transport_time"), derived.get("diffusion_time")
+    if not (isinstance(th, dict) and isinstance(diff, dict) and _finite(th.get("p50")) and _finite(diff.get("p50"))
+            and diff["p50"] > 0 and th.get("unit") == diff.get("unit")):
+        return None
+    chain = out_dir / "stars" / e.folder / CHAIN_FILE
+    if chain.is_file():
+        try:
+            import h5py
+
+            with h5py.File(chain, "r") as f:
+                g = f.get("derived")
+                if g is not None and "energy_transport_time" in g and "diffusion_time" in g:
+                    a, b = g["energy_transport_time"], g["diffusion_time"]
+                    if a.attrs.get("unit") == b.attrs.get("unit"):
+                        with np.errstate(divide="ignore", invalid="ignore"):
+                            q = _quantiles(np.asarray(a) / np.asarray(b))
+                        if q is not None:
+                            return {**q, "samples": True}
+        except (OSError, KeyError, ValueError):  # an unreadable chain only costs the interval
+            pass
+    return {"p50": th["p50"] / diff["p50"], "samples": False}
+
+
 def star_page(out_dir: Path, e: StarEntry, prev: StarEntry | None, nxt: StarEntry | None) -> str:
     """A star's page as HTML (star.html.j2); a failed star shows its reason and observations only."""
     s = e.summary or {}
@@ -674,7 +825,8 @@ def star_page(out_dir: Path, e: StarEntry, prev: StarEntry | None, nxt: StarEntr
             parameters=_parameter_rows(s), unconstrained=unconstrained_sentence(s), fixed=s.get("fixed") or {},
             derived=_derived_groups(s), comparison=_comparison(s), sampler=sampler,
             steps_over_tau=steps / tau if _finite(steps) and _finite(tau) and tau else None,
-            ppc_pvalue=s.get("ppc_pvalue"), poor_fit=_finite(s.get("ppc_pvalue")) and s["ppc_pvalue"] < PPC_POOR,
+            ppc_pvalue=s.get("ppc_pvalue"), poor_fit=e.poor_fit, ppc_poor=PPC_POOR,
+            time_ratio=_time_ratio(out_dir, e),
             opacity=s.get("opacity", ""), stages=s.get("stages") or {}, seed=s.get("seed", ""),
             seconds=s.get("seconds"), figures=figures, missing=[] if undrawn else missing, undrawn=undrawn)
     return _render("star.html.j2", **context)

@@ -372,6 +372,7 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
             "config_sha256": state["config_sha256"], "plugins": list(hashes),
             "plugin_sha256": list(hashes.values()), "executor": executor, "workers": workers,
             "first_started": state["first_started"], "started": started, "finished": finished,
+            "resumed_stars": outcome.resumed,  # stars an earlier run had done: 0 for a fresh run (the report)
             "components": components,
         }
         write_run_toml(outcome.run_toml, config, provenance)

@@ -28,8 +28,11 @@ from radwalk.errors import ConfigError
 from radwalk.host.config import RunConfig, SamplerConfig
 from radwalk.inference.fit import fit_star
 from radwalk.inference.star import Star
+from radwalk.report.figures import mass_recovery_figure
 from radwalk.report.pages import (
     interval,
+    like,
+    plus_minus,
     star_page_name,
     unconstrained_sentence,
     write_report,
@@ -221,7 +224,7 @@ def test_failed_star_shows_reason_and_observations_only(run_dir):
     text = parse(page_of(run_dir, "a/b")).all_text()
     assert s["reason"] in text
     assert "This star could not be fitted" in text
-    assert "50 ± 1" in text and "not measured" in text  # T_eff was not given (null in summary.json)
+    assert "50.0 ± 1.0" in text and "not measured" in text  # T_eff was not given (null in summary.json)
     assert "Parameters" not in text and "Sampler diagnostics" not in text
     assert s["reason"] in parse(run_dir / "report" / "index.html").all_text()
 
@@ -361,6 +364,35 @@ def test_intervals_round_to_the_error(d, html):
     assert interval(d) == html
 
 
+# Worked by hand with the rule "two significant digits of the smaller error" (common practice, no source).
+@pytest.mark.parametrize("d, html", [
+    # +0.012/-0.011: the smaller error 0.011 has its second digit at 1e-3, so three decimals, not six
+    ({"p16": 1.223456, "p50": 1.234567, "p84": 1.246789},
+     "1.235<span class=\"pm\"><sup>+0.012</sup><sub>−0.011</sub></span>"),
+    # +25000/-3100 at 10^5: the mantissa's smaller error 0.031 sets three decimals, the larger one follows
+    ({"p16": 1.2039e5, "p50": 1.2349e5, "p84": 1.4849e5},
+     "1.235<span class=\"pm\"><sup>+0.250</sup><sub>−0.031</sub></span> × 10<sup>5</sup>"),
+    # +/-0.0004 on 0.98765: two significant digits of 0.0004 are 0.00040, so five decimals
+    ({"p16": 0.98725, "p50": 0.98765, "p84": 0.98805},
+     "0.98765<span class=\"pm\"><sup>+0.00040</sup><sub>−0.00040</sub></span>"),
+    # a fraction piled at 1 (+1.5e-10/-0.6257): the tiny upper error does not ask for ten decimals
+    ({"p16": 0.374329695820449, "p50": 0.9999999998496261, "p84": 1.0},
+     "1.00<span class=\"pm\"><sup>+0.00</sup><sub>−0.63</sub></span>"),
+])
+def test_interval_precision_hand_worked(d, html):
+    assert interval(d) == html
+
+
+def test_percentiles_and_measurements_to_their_errors_precision():
+    d = {"p16": 1.223456, "p50": 1.234567, "p84": 1.246789}
+    assert like(1.2399876, d) == "1.240"  # a MAP beside that interval: three decimals too
+    assert like(1.2399876, None) == "1.24"  # no interval: the plain four significant digits
+    assert plus_minus(1.0, 0.02) == "1.000 ± 0.020"
+    assert plus_minus(5772, 60) == "5772 ± 60"
+    assert plus_minus(0.98765, 0.0123) == "0.988 ± 0.012"
+    assert plus_minus(2.3456e7, 4.1e6) == "2.35 ± 0.41 × 10<sup>7</sup>"
+
+
 # ---------------------------------------------------------------- in the browser
 
 
@@ -495,13 +527,213 @@ def test_report_works_without_javascript(run_dir, tmp_path):
     assert index["rows"] == catalog_order and index["sorted"] == catalog_order
 
 
+
+
+# ---------------------------------------------------------------- issue 12 item 5: downloads, badges, labels, truths
+
+
+def copied_run(run_dir: Path, tmp_path: Path) -> Path:
+    run = tmp_path / "run"
+    shutil.copytree(run_dir, run)
+    return run
+
+
+def test_downloads_link_only_the_files_that_exist(run_dir, tmp_path):
+    links = parse(run_dir / "report" / "index.html").attrs("a", "href")
+    assert "../run.toml" in links  # the fixture has run.toml but no summary table (no catalog runner)
+    assert "../summary.ecsv" not in links and "../summary.fits" not in links
+    run = copied_run(run_dir, tmp_path)
+    table = Table({"id": [s.id for s in STARS], "folder": [safe_folder_name(s.id) for s in STARS]})
+    table.write(run / "summary.ecsv", format="ascii.ecsv")
+    table.write(run / "summary.fits")
+    (run / "run.toml").unlink()
+    write_report(run)
+    page = parse(run / "report" / "index.html")
+    downloads = [h for h in page.attrs("a", "href") if h.startswith("../") and "/" not in h[3:]]
+    assert sorted(downloads) == ["../summary.ecsv", "../summary.fits"]
+    for href in downloads:  # relative to report/, as the page is opened from disk
+        assert (run / "report" / unquote(href)).resolve().is_file()
+
+
+def test_a_failed_predictive_check_is_never_a_green_ok(run_dir, tmp_path):
+    run = copied_run(run_dir, tmp_path)
+    folder = run / "stars" / safe_folder_name("Alpha one")
+    s = json.loads((folder / "summary.json").read_text())
+    # a converged star whose replicated data nearly always fit better than the observed
+    s.update(status="ok", ppc_pvalue=0.0031)
+    (folder / "summary.json").write_text(json.dumps(s))
+    write_report(run)
+    star = parse(page_of(run, "Alpha one"))
+    badges = [a["class"] for t, a in star.tags if t == "span" and "badge" in a.get("class", "")]
+    assert badges == ["badge st-poor-fit"]
+    assert "poor fit, p = 0.0031" in star.all_text()
+    index = parse(run / "report" / "index.html")
+    assert "row-poor-fit" in index.status_rows() and "row-ok" not in index.status_rows()
+    assert "1 poor fit" in index.all_text()
+    # the same star with a passing check is a plain ok
+    s["ppc_pvalue"] = 0.4
+    (folder / "summary.json").write_text(json.dumps(s))
+    write_report(run)
+    assert "row-ok" in parse(run / "report" / "index.html").status_rows()
+    star = parse(page_of(run, "Alpha one"))
+    assert [a["class"] for t, a in star.tags if t == "span" and "badge" in a.get("class", "")] == ["badge st-ok"]
+
+
+def ran_text(run: Path) -> str:
+    text = parse(run / "report" / "index.html").all_text()
+    return text[text.index("Ran "):text.index("Versions")]
+
+
+@pytest.mark.parametrize("resumed, words", [
+    # a fresh run: its state is stamped a second after its start, and it did no star of an earlier run
+    (0, None),
+    (2, "resumed: 2 stars done by an earlier run, first started 2026-01-01T00:00:00Z"),
+])
+def test_a_fresh_run_is_not_labelled_resumed(run_dir, tmp_path, resumed, words):
+    run = copied_run(run_dir, tmp_path)
+    first = "2026-01-02T03:04:04Z" if not resumed else "2026-01-01T00:00:00Z"
+    write_run_toml(run / "run.toml", FAST, {**PROVENANCE, "first_started": first, "resumed_stars": resumed})
+    write_report(run)
+    text = ran_text(run)
+    if words is None:
+        assert "resumed" not in text and "first" not in text
+    else:
+        assert words in text
+    assert "resumed_stars" not in parse(run / "report" / "index.html").all_text().split("Full run")[0]
+
+
+def test_star_page_explains_the_photon_time_with_the_ratio_from_the_chain(run_dir):
+    import h5py
+
+    folder = run_dir / "stars" / safe_folder_name("Alpha one")
+    with h5py.File(folder / "chain.h5", "r") as f:
+        ratio = np.asarray(f["derived/energy_transport_time"]) / np.asarray(f["derived/diffusion_time"])
+    p16, p50, p84 = np.percentile(ratio[np.isfinite(ratio)], (16, 50, 84))
+    text = parse(page_of(run_dir, "Alpha one")).all_text()
+    assert "What the photon diffusion time is, and what it is not" in text
+    assert "absorbed" in text and "tth = U/L" in text
+    want = interval_text({"p16": p16, "p50": p50, "p84": p84})
+    assert f"For this star tth / tdiff = {want} (median and 68 % interval of the ratio" in text
+    assert p50 > 1  # the gas holds more heat than the radiation: the energy leaves slower than the photons walk
+
+
+def test_truths_give_the_recovered_against_true_mass_plot(run_dir, tmp_path):
+    assert not (run_dir / "report" / "mass_recovery.png").exists()  # a catalog without truths
+    assert "Recovered against true" not in parse(run_dir / "report" / "index.html").all_text()
+    run = copied_run(run_dir, tmp_path)
+    Table({"id": ["Alpha one", "Gamma two laws", "a/b", "not in the run"], "mass": [1.0, 1.1, 1.0, 2.0]},
+          units={"mass": "solMass"}).write(run / "truths.ecsv", format="ascii.ecsv")
+    write_report(run)
+    assert (run / "report" / "mass_recovery.png").is_file()
+    page = parse(run / "report" / "index.html")
+    assert "mass_recovery.png" in page.attrs("img", "src")
+    assert f"true values are read from {run / 'truths.ecsv'}" in page.all_text()
+
+
+def test_recovery_figure_draws_the_intervals_and_the_one_to_one_line():
+    rows = [{"id": "x", "truth": 1.0, "p16": 0.95, "p50": 1.02, "p84": 1.08, "p2_5": 0.9, "p97_5": 1.15, "ok": True},
+            {"id": "y", "truth": 2.0, "p16": 1.7, "p50": 1.9, "p84": 2.1, "p2_5": float("nan"),
+             "p97_5": float("nan"), "ok": False}]
+    fig = mass_recovery_figure(rows)
+    ax = fig.axes[0]
+    labels = ax.get_legend_handles_labels()[1]
+    assert labels == ["1:1 (recovered = true)", "95 % interval", "median, 68 % interval",
+                      "median, 68 % interval (not converged)"]
+    line = next(ln for ln in ax.get_lines() if ln.get_label().startswith("1:1"))
+    assert np.allclose(line.get_xdata(), line.get_ydata())
+    lo, hi = ax.get_xlim()
+    assert lo < 0.9 and hi > 2.0  # every interval end and truth is inside
+
+
+# Loads each page in an iframe of each width (the page's viewport) and records, per load, the page's
+# scroll width against its viewport, the elements that reach past the viewport and are not inside a box that
+# scrolls or clips sideways (a table's .scroll), and each image's shown width.
+WIDTH_CHECK = """<!DOCTYPE html><html><head><meta charset="utf-8"><title>width</title></head><body style="margin:0">
+<pre id="result"></pre>
+<script>
+var jobs = [];
+PAGES.forEach(function (p) { WIDTHS.forEach(function (w) { jobs.push([p, w]); }); });
+var out = [];
+function clipped(el) {
+  for (var a = el.parentElement; a; a = a.parentElement) {
+    var o = getComputedStyle(a).overflowX;
+    if (o === "auto" || o === "scroll" || o === "hidden") return true;
+  }
+  return false;
+}
+function next() {
+  if (!jobs.length) { document.getElementById("result").textContent = JSON.stringify(out); return; }
+  var job = jobs.shift(), f = document.createElement("iframe");
+  f.width = job[1]; f.height = 900; f.style.border = "0";
+  f.onload = function () {
+    var d = f.contentDocument, rec = {url: job[0], width: job[1], over: []};
+    rec.scrollWidth = d.documentElement.scrollWidth;
+    rec.clientWidth = d.documentElement.clientWidth;
+    d.querySelectorAll("body *").forEach(function (el) {
+      var r = el.getBoundingClientRect();
+      if (r.width && (r.right > rec.clientWidth + 1 || r.left < -1) && !clipped(el))
+        rec.over.push(el.tagName + "." + el.className + " " + Math.round(r.left) + "-" + Math.round(r.right));
+    });
+    rec.images = Array.prototype.map.call(d.querySelectorAll("img"), function (i) {
+      return {src: i.getAttribute("src"), ok: i.complete && i.naturalWidth > 0,
+              right: i.getBoundingClientRect().right};
+    });
+    out.push(rec);
+    document.body.removeChild(f);
+    setTimeout(next, 0);
+  };
+  f.src = job[0];
+  document.body.appendChild(f);
+}
+next();
+</script></body></html>
+"""
+PHONE, DESKTOP = 390, 1280  # CSS px: a common phone's width and a laptop's
+
+
+def page_widths(pages: list[Path], tmp_path: Path, widths=(PHONE, DESKTOP)) -> list[dict]:
+    checker = tmp_path / "width.html"
+    urls = [p.resolve().as_uri() for p in pages]
+    checker.write_text(WIDTH_CHECK.replace("PAGES", json.dumps(urls)).replace("WIDTHS", json.dumps(list(widths))))
+    proc = chromium(tmp_path, "--allow-file-access-from-files", "--virtual-time-budget=30000", "--dump-dom",
+                    checker.as_uri())
+    data = Page(proc.stdout).all_text()
+    found = json.loads(data[data.index("[{"):data.rindex("}]") + 2])
+    assert len(found) == len(urls) * len(widths)
+    return found
+
+
 @NEEDS_CHROMIUM
-def test_screenshot_of_the_catalog_page(run_dir, tmp_path):
+@pytest.mark.browser
+def test_no_page_is_wider_than_a_phone_or_a_desktop_screen(run_dir, tmp_path):
+    pages = [run_dir / "report" / "index.html"] + [page_of(run_dir, s.id) for s in STARS]
+    for rec in page_widths(pages, tmp_path):
+        where = f"{rec['url']} at {rec['width']} px"
+        assert rec["clientWidth"] == rec["width"], where
+        assert rec["scrollWidth"] <= rec["clientWidth"], f"{where}: content {rec['scrollWidth']} px wide"
+        assert rec["over"] == [], f"{where}: past the edge {rec['over']}"
+        for img in rec["images"]:
+            assert img["ok"] and img["right"] <= rec["width"] + 1, f"{where}: {img}"
+
+
+@NEEDS_CHROMIUM
+@pytest.mark.browser
+def test_width_check_catches_a_page_wider_than_the_screen(run_dir, tmp_path):
+    run = copied_run(run_dir, tmp_path)
+    index = run / "report" / "index.html"
+    index.write_text(index.read_text().replace("<h2 id=\"run\">", '<div style="width:600px">x</div><h2 id="run">'))
+    phone, desktop = page_widths([index], tmp_path)
+    assert phone["scrollWidth"] > PHONE and phone["over"]
+    assert desktop["scrollWidth"] == DESKTOP and desktop["over"] == []
+
+
+@NEEDS_CHROMIUM
+@pytest.mark.parametrize("width", [PHONE, DESKTOP])
+def test_screenshot_of_the_catalog_page_at_phone_and_desktop_width(run_dir, tmp_path, width):
     shot = tmp_path / "shot.png"
-    chromium(tmp_path, f"--screenshot={shot}", "--window-size=1280,2000",
+    chromium(tmp_path, f"--screenshot={shot}", f"--window-size={width},2000",
              (run_dir / "report" / "index.html").resolve().as_uri())
     data = shot.read_bytes()
     assert data[:8] == b"\x89PNG\r\n\x1a\n"
-    width, height = struct.unpack(">II", data[16:24])
-    assert (width, height) == (1280, 2000)
+    assert struct.unpack(">II", data[16:24]) == (width, 2000)
     assert len(data) > 30_000  # a blank page compresses to a few kB

@@ -117,9 +117,25 @@ def test_changed_config_without_state_file_recomputes(ref, tmp_path):
     assert (o.resumed, o.computed) == (0, 2)
     for sid in ("a", "b"):
         assert json.loads((star_folder(out, sid) / "summary.json").read_text())["sampler"]["steps"] == 300
+    assert _resumed_in_report(out) == (0, False)  # every star computed again: not a resumed run
     # unchanged config: everything is reused
     o = _rerun(d, out, changed)
     assert (o.resumed, o.computed) == (2, 0)
+    assert _resumed_in_report(out) == (2, True)
+
+
+def _resumed_in_report(out):
+    """(run.toml's resumed_stars, whether the report's catalog page says "resumed" where it says when it ran)."""
+    try:
+        import tomllib
+    except ImportError:  # Python 3.10
+        import tomli as tomllib
+
+    from radwalk.report.pages import write_report
+
+    count = tomllib.loads((out / "run.toml").read_text())["provenance"]["resumed_stars"]
+    ran = write_report(out).read_text().split("<dt>Ran</dt>", 1)[1].split("</dd>", 1)[0]
+    return count, "resumed" in ran
 
 
 @pytest.mark.slow
