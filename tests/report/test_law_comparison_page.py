@@ -19,7 +19,7 @@ from radwalk.report.law_figures import LAW_FIGURE, law_comparison_figure, law_pa
 
 @pytest.fixture(scope="module")
 def run(tmp_path_factory):
-    out, _ = two_law_run(tmp_path_factory.mktemp("page"), report=True)
+    out, _ = two_law_run(tmp_path_factory)
     return out
 
 

@@ -24,7 +24,7 @@ def number(x) -> float:
 
 @pytest.fixture(scope="module")
 def run(tmp_path_factory):
-    out, _ = two_law_run(tmp_path_factory.mktemp("rows"), report=False)
+    out, _ = two_law_run(tmp_path_factory)
     return out
 
 

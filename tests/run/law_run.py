@@ -67,11 +67,20 @@ def run_config_toml(plugin: Path) -> str:
         """).replace("'", '"')
 
 
-def two_law_run(folder: Path, report: bool = True):
-    """Runs the two-star catalog under both laws into ``folder / "run"``; returns (run folder, outcome)."""
+def two_law_run(tmp_path_factory):
+    """The two-star catalog run under both laws, with its report; returns (run folder, outcome or None).
+
+    Run once a test session, in the session's temporary folder, and shared by the test modules that read it
+    (tests/run, tests/results, tests/report): they must not change it.  ``outcome`` is None for the modules
+    that find it already run.
+    """
     from radwalk.run.orchestrate import load_run_config, run_catalog
 
-    folder = Path(folder)
+    folder = Path(tmp_path_factory.getbasetemp()) / "two-law-run"
+    out = folder / "run"
+    if (out / "report" / "index.html").is_file():
+        return out, None
+    folder.mkdir(parents=True, exist_ok=True)
     plugin = folder / "tenth_law.py"
     plugin.write_text(TENTH_LAW)
     config_path = folder / "run.toml"
@@ -83,7 +92,18 @@ def two_law_run(folder: Path, report: bool = True):
         t[name] = np.array([v[j] for v in STARS.values()]) * unit
     catalog = folder / "catalog.ecsv"
     t.write(catalog, overwrite=True)
-    out = folder / "run"
-    outcome = run_catalog(catalog, out, load_run_config(config_path), workers=1, report=report, plots=False,
+    outcome = run_catalog(catalog, out, load_run_config(config_path), workers=1, report=True, plots=False,
                           quiet=True)
     return out, outcome
+
+
+def tenth_law_config(folder: Path, laws=LAWS):
+    """The run's config with the tenth law's plugin written into ``folder`` and the laws in the given order."""
+    from radwalk.run.orchestrate import load_run_config
+
+    plugin = Path(folder) / "tenth_law.py"
+    plugin.write_text(TENTH_LAW)
+    config_path = Path(folder) / "run.toml"
+    config_path.write_text(run_config_toml(plugin).replace(repr(list(LAWS)).replace("'", '"'),
+                                                           repr(list(laws)).replace("'", '"')))
+    return load_run_config(config_path)
