@@ -189,7 +189,7 @@ def fit(radius=None, luminosity=None, teff=None, feh=None, *, id="star", config=
     status = "ok" if summary["sampler"]["converged"] else "not-converged"
     reason = "" if status == "ok" else summary["sampler"]["reason"]
     doc = strict(result_document(star, cfg, StarResult(star.id, status, reason, summary)))  # as summary.json
-    primary = products[cfg.opacity_names()[0]]
+    primary = next(iter(products.values()))  # the first law that fitted
     return FitResult(summary=doc, samples=_samples_table(primary), chain=primary.chain, _products=primary,
                      _config=cfg)
 

@@ -60,6 +60,9 @@ def format_fit(doc: dict) -> str:
         lines.append("")
         lines.append("opacity comparison (median, 16th-84th):")
         for op, c in doc["comparison"].items():
+            if c.get("status") == "failed":
+                lines.append(f"  {op:<20} failed (see the warning below)")
+                continue
             m, t = c["parameters"]["mass"], c["derived"]["diffusion_time"]
             lines.append(f"  {op:<20} mass {_fmt(m)} M_sun   diffusion time {_fmt(t)} yr")
     for wtxt in doc.get("warnings", []):

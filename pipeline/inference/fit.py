@@ -249,26 +249,70 @@ def fit_one(star: Star, config: RunConfig, seed: np.random.SeedSequence, opacity
     return summary, products
 
 
+LAW_FAILURES = (CatalogError, ModelError, ConfigError, PluginError)  # a law's own failure to fit a star
+
+
+def law_failure(opacity: str, exc: Exception) -> str:
+    """One line naming the opacity law that could not fit the star and why."""
+    why = " ".join(str(exc).split())
+    return f"opacity law {opacity!r} failed: {'plugin error: ' if isinstance(exc, PluginError) else ''}{why}"
+
+
+def _law_entry(fit: dict) -> dict:
+    """A law's entry of the ``comparison`` section: its fit's summary, with its own status and reason."""
+    converged = fit["sampler"]["converged"]
+    return {"status": "ok" if converged else "not-converged", "reason": "" if converged else fit["sampler"]["reason"],
+            **{k: v for k, v in fit.items() if k not in ("stages", "fixed")}}
+
+
 def fit_laws(star: Star, config: RunConfig, folder: Path | None = None, progress=None) -> tuple[dict, dict]:
     """Fits one star under every opacity law of the config.
 
-    Returns the summary (the primary law's, with a ``comparison`` section when
-    there are several laws) and the in-memory products per law.  With a
-    ``folder``, each law's chain is written there as it grows.
+    Returns the summary (the first law's that fitted, with a ``comparison``
+    section when there are several laws) and the in-memory products of every
+    law that fitted.  With a ``folder``, each law's chain is written there as
+    it grows.
+
+    A law that cannot fit the star (a :data:`LAW_FAILURES` error) does not cost
+    the others their fits: its ``comparison`` entry has status ``failed`` and
+    the reason (:func:`law_failure`), and the summary's warnings name it.  When
+    the run's first law is the one that failed, the summary's ``opacity`` names
+    the law whose fit it gives.
+
+    Raises
+    ------
+    ModelError, CatalogError, ConfigError, PluginError
+        When the only law, or every law, fails (several: a ModelError naming each).
     """
-    fits, products = {}, {}
-    for j, op in enumerate(config.opacity_names()):
+    laws = config.opacity_names()
+    fits, products, failed, errors = {}, {}, {}, {}
+    for j, op in enumerate(laws):
         chain_path = None
         if folder is not None:
             chain_path = folder / chain_file_name(op, primary=j == 0, partial=True)
-        # every law gets the same fresh seed, so a comparison is paired and order-free
-        fits[op], products[op] = fit_one(star, config, seed_for(config.seed, star.id), op, chain_path, progress)
-    summary = dict(fits[config.opacity_names()[0]])
-    if len(fits) > 1:
-        summary["comparison"] = {op: {"parameters": f["parameters"], "derived": f["derived"],
-                                      "warnings": f["warnings"]} for op, f in fits.items()}
+        try:
+            # every law gets the same fresh seed, so a comparison is paired and order-free
+            fits[op], products[op] = fit_one(star, config, seed_for(config.seed, star.id), op, chain_path, progress)
+        except LAW_FAILURES as exc:
+            if len(laws) == 1:
+                raise
+            failed[op], errors[op] = law_failure(op, exc), exc
+            if chain_path is not None:
+                chain_path.unlink(missing_ok=True)  # the failed law's half chain is no result
+    if not fits:
+        raise ModelError("; ".join(failed[op] for op in laws))
+    lead = next(op for op in laws if op in fits)
+    summary = dict(fits[lead])
+    if len(laws) > 1:
+        summary["comparison"] = {op: _law_entry(fits[op]) if op in fits else
+                                 {"status": "failed", "reason": failed[op], "warnings": []} for op in laws}
+        stand_in = f" (the star's results are those of {lead!r})" if lead != laws[0] else ""
+        summary["warnings"] = [f"{failed[op]}{stand_in if op == laws[0] else ''}" for op in failed] + \
+            list(summary["warnings"])
     if folder is not None:
-        for j, op in enumerate(config.opacity_names()):
+        for j, op in enumerate(laws):
+            if op not in fits:
+                continue
             part = folder / chain_file_name(op, primary=j == 0, partial=True)
             describe_chain_file(part, products[op], fits[op], config.seed)  # units, provenance, derived samples
             part.replace(folder / chain_file_name(op, primary=j == 0))
@@ -294,7 +338,7 @@ def fit_star(star: Star, config: RunConfig, outdir=None, plots: bool = True, pro
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ValidityWarning)  # collected into the summary instead
             summary, products = fit_laws(star, config, folder, progress)
-        primary = config.opacity_names()[0]
+        primary = next(iter(products))  # the first law that fitted (one that failed is named in the warnings)
         status = "ok" if summary["sampler"]["converged"] else "not-converged"
         reason = "" if status == "ok" else summary["sampler"]["reason"]
         if folder is not None:

@@ -189,8 +189,9 @@ def _catalog_order(out_dir: Path) -> list[tuple[str, str]] | None:
         folders = [str(x) for x in table["folder"]] if "folder" in table.colnames else [""] * len(ids)
     except Exception:  # noqa: BLE001 - an unreadable table only loses the order, not the report
         return None
-    return [(sid, folder if folder and "/" not in folder and folder not in (".", "..") else safe_folder_name(sid))
-            for sid, folder in zip(ids, folders)]
+    order = [(sid, folder if folder and "/" not in folder and folder not in (".", "..") else safe_folder_name(sid))
+             for sid, folder in zip(ids, folders)]
+    return list(dict.fromkeys(order))  # a run comparing opacity laws has a row per star and law
 
 
 def load_stars(out_dir) -> list[StarEntry]:
@@ -528,6 +529,35 @@ def _catalog_plots(out_dir: Path, report_dir: Path, entries, recovery: list | No
     return {"figures": figures, "note": note, "truth": truth}
 
 
+def _law_comparison(report_dir: Path, entries) -> dict | None:
+    """The catalog's opacity-law comparison (radwalk.report.law_figures) when the run fitted several laws.
+
+    Returns None for a run of one law; else the figure (src empty when it could
+    not be drawn), its caption, and the stars a law could not fit, with why.
+    """
+    summaries = [e.summary for e in entries if e.summary is not None]
+    failed = [(e.id, str(c.get("reason") or f"opacity law {op!r} failed")) for e in entries
+              for op, c in ((e.summary or {}).get("comparison") or {}).items()
+              if isinstance(c, dict) and c.get("status") == "failed"]
+    if not any(len(s.get("comparison") or {}) > 1 for s in summaries):
+        return None
+    from radwalk.report.law_figures import write_law_figures
+
+    note = ""
+    try:
+        made = write_law_figures(summaries, report_dir)
+    except Exception as exc:  # noqa: BLE001 - a failed plot must not cost the whole report
+        made, note = {}, f"The comparison could not be drawn: {type(exc).__name__}: {exc}"
+    name = next(iter(made.values()), "")
+    return {"src": _href(name) if name else "", "title": "Opacity laws compared",
+            "caption": "Posterior medians with 16–84 % intervals of each star's mass and photon diffusion time "
+                       "under each compared law against the run's first law (dashed: 1:1), and their ratios "
+                       "against the mass. A ratio's bar adds the two intervals' half-widths in ln in "
+                       "quadrature, as if the fits were independent (they share the star's data), so it only "
+                       "guides the eye.",
+            "failed": failed, "note": note}
+
+
 def _catalog_columns(entries) -> tuple:
     """The CATALOG_COLUMNS to show: every column but an optional one no star has a value for."""
     def has(where, key):
@@ -568,7 +598,7 @@ def catalog_page(out_dir: Path, report_dir: Path, entries) -> str:
         counts=[(s, counts[s]) for s in STATUSES if counts[s] or s in ("ok", "not-converged", "failed")],
         run=_run_info(out_dir, run, run_text, problem, entries),
         plots=_catalog_plots(out_dir, report_dir, entries, recovery), truths=truths,
-        downloads=_downloads(out_dir),
+        downloads=_downloads(out_dir), laws=_law_comparison(report_dir, entries),
         columns=[(symbol, unit) for symbol, unit, _, _ in columns],
         rows=_catalog_rows(entries, columns),
     )
@@ -708,8 +738,13 @@ def _comparison(s: dict) -> dict | None:
             continue
         unit = next((v.get("unit") for v in vals if v), "")
         rows.append((label, unit, vals))
-    by_law = [{"name": str(op), "primary": op == s.get("opacity"),
-               "warnings": [str(w) for w in (comp[op] or {}).get("warnings") or []]} for op in laws]
+    by_law = []
+    for op in laws:
+        c = comp[op] or {}
+        notes = [str(w) for w in c.get("warnings") or []]
+        if c.get("status") == "failed":  # a law that could not fit the star: its reason names it
+            notes.append(str(c.get("reason") or "failed"))
+        by_law.append({"name": str(op), "primary": op == s.get("opacity"), "warnings": notes})
     return {"laws": by_law, "rows": rows, "warned": any(law["warnings"] for law in by_law)}
 
 

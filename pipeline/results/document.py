@@ -8,7 +8,10 @@ R and T_eff, so that the fit left L out: see
 :class:`radwalk.inference.star.Star`); a fitted star adds the fit's summary (``opacity``, ``stages``,
 ``parameters``, ``fixed``, ``derived``, ``sampler``, ``ppc_pvalue``,
 ``unconstrained``, ``warnings``, ``plots`` and, when several opacity laws
-were fitted, ``comparison``).  Every percentile entry holds ``p16``, ``p50``
+were fitted, ``comparison``: law -> that law's fit with its own ``status``
+and ``reason``, or only those two and empty ``warnings`` for a law that
+could not fit the star; the main entries are then the first law's that
+fitted, named by ``opacity``).  Every percentile entry holds ``p16``, ``p50``
 and ``p84`` (:data:`PERCENTILES`).  The file is strict JSON: a number that is
 missing or not finite is ``null``, and readers take null as "no value".
 """

@@ -169,6 +169,11 @@ def _setup_log(out: Path) -> logging.Handler:
 
 def _log_star(doc: dict, seconds: float | None = None, note: str = ""):
     reason = " ".join(str(doc.get("reason") or "").split())
+    if doc.get("status") != "failed":  # a law that could not fit a star the others fitted (its reason names it)
+        laws = doc.get("comparison") if isinstance(doc.get("comparison"), dict) else {}
+        failed = [" ".join(str(c.get("reason") or "").split()) for c in laws.values()
+                  if isinstance(c, dict) and c.get("status") == "failed"]
+        reason = "; ".join(x for x in (reason, *failed) if x)
     secs = doc.get("seconds", 0.0) if seconds is None else seconds
     LOG.info("star %r %s %.1f s%s%s", doc.get("id"), doc.get("status"), float(secs or 0.0),
              f" ({note})" if note else "", f": {reason}" if reason else "")
@@ -332,7 +337,8 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
             draw = [e for e in catalog if e.row in fitted and needs_figures(
                 star_folder(out, e.id), read_document(star_folder(out, e.id) / STAR_SUMMARY))] + undrawn
             if draw:
-                _write_summary(out, catalog)  # the fits' table now; rewritten once the figures add their notes
+                # the fits' table now; rewritten once the figures add their notes
+                _write_summary(out, catalog, config.opacity_names())
                 _draw(ex, sorted(draw, key=lambda e: e.row), out, config,
                       hashes if executor == "dask" else None, quiet, outcome)
         cancel = False
@@ -364,7 +370,7 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         if outcome.undrawn:
             LOG.info("%d fitted star(s) without figures%s", outcome.undrawn,
                      "" if plots else " (figures off in this run; a run with them on draws them)")
-        table = _write_summary(out, catalog)
+        table = _write_summary(out, catalog, config.opacity_names())
         finished = now()
         provenance = {
             **package_versions(PROVENANCE_PACKAGES), "seed": config.seed, "catalog": str(catalog.path),
@@ -498,10 +504,10 @@ def _draw(ex, stars, out, config, hashes, quiet, outcome):
         bar.close()
 
 
-def _write_summary(out: Path, catalog: Catalog):
+def _write_summary(out: Path, catalog: Catalog, laws: tuple = ()):
     from radwalk.results.table import build_summary_table, fits_safe
 
-    table = build_summary_table(summary_docs(out, catalog))
+    table = build_summary_table(summary_docs(out, catalog), laws)
     table.meta["catalog"] = str(catalog.path)
     table.meta["catalog_sha256"] = catalog.fingerprint
     write_table(table, out / SUMMARY_ECSV)

@@ -112,7 +112,8 @@ def stored_products(star, config, folder) -> dict:
     Returns
     -------
     dict
-        opacity law -> :class:`radwalk.results.products.FitProducts`, the primary law first.
+        opacity law -> :class:`radwalk.results.products.FitProducts` of every law that fitted, in the
+        run's order.
     """
     from radwalk.inference.derived import band_structures, derive
     from radwalk.inference.fit import _evenly, stages_for
@@ -123,8 +124,12 @@ def stored_products(star, config, folder) -> dict:
     folder = Path(folder)
     doc = read_document(folder / STAR_SUMMARY) or {}
     out = {}
+    laws = doc.get("comparison") or {}
     for k, op in enumerate(config.opacity_names()):
-        chain = stored_chain(folder / chain_file_name(op, primary=k == 0), doc.get("sampler") if k == 0 else None)
+        if (laws.get(op) or {}).get("status") == "failed":
+            continue  # a law that could not fit the star has no chain (radwalk.inference.fit.fit_laws)
+        chain = stored_chain(folder / chain_file_name(op, primary=k == 0),
+                             doc.get("sampler") if op == doc.get("opacity") else (laws.get(op) or {}).get("sampler"))
         stages = stages_for(config, op)
         post = Posterior(stages, star.observations(), config, feh=star.feh)
         # the fit's seeds for this law, in the fit's order (fit_laws, fit_one)
@@ -169,7 +174,7 @@ def draw_stored_figures(star, config, folder) -> FiguresResult:
         with warnings.catch_warnings():
             warnings.simplefilter("ignore", ValidityWarning)  # the bands' warnings are collected below
             products = stored_products(star, config, folder)
-            primary = products[config.opacity_names()[0]]
+            primary = next(iter(products.values()))  # the first law that fitted
             plots = write_star_plots(primary, folder, comparison=products if len(products) > 1 else None)
         # the same order as a fit that draws its own figures (radwalk.inference.fit.fit_star)
         doc["warnings"] = list(dict.fromkeys(list(doc.get("warnings") or []) + primary.band_notes))

@@ -297,7 +297,8 @@ def test_star_and_catalog_images_are_shown(run_dir):
     assert page.attrs("img", "src") == [] and "No plots were drawn for this star" in page.all_text()
     assert "Not available (no image was written)" not in page.all_text()
     srcs = parse(run_dir / "report" / "index.html").attrs("img", "src")
-    assert srcs == ["hr_diagram.png", "timescales_vs_mass.png"]
+    # a star of this run is fitted under two laws (TWO_LAWS): the page compares them after the catalog plots
+    assert srcs == ["hr_diagram.png", "timescales_vs_mass.png", "law_comparison.png"]
 
 
 def test_catalog_order_from_summary_table_and_unfinished_stars(run_dir, tmp_path):
@@ -494,7 +495,8 @@ def test_every_page_image_and_link_works_in_chromium(run_dir, tmp_path):
         assert p["title"] and p["h1"], p["url"]
         broken = [i["src"] for i in p["images"] if not i["ok"]]
         assert broken == [], f"{p['url']}: broken images {broken}"
-    assert sum(len(p["images"]) for p in pages) == 2 + len(STAR_PNGS)  # catalog plots + Alpha one's
+    # the catalog plots, the comparison of the opacity laws (a star is fitted under TWO_LAWS) and Alpha one's
+    assert sum(len(p["images"]) for p in pages) == 3 + len(STAR_PNGS)
     index = next(p for p in pages if p["url"].endswith("/index.html"))
     assert index["js"] and index["rows"] == sorted(s.id for s in STARS)
     masses = {s.id: summary_of(run_dir, s.id).get("parameters", {}).get("mass", {}).get("p50") for s in STARS}
