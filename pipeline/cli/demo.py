@@ -43,6 +43,13 @@ def cmd_demo(args) -> int:
         shown = ", ".join(f"{n} {c}" for n, c in rec["inside"].items())
         print(f"true values inside the 95 % intervals, of {rec['converged']} converged stars: {shown} "
               f"({paths['truths'].name})")
+    designed = rec["refused_as_designed"]
+    for sid, why in designed.items():
+        print(f"refused as designed: {sid}" + (f" ({why})" if why else ""))
     if outcome.report:
         print(f"open {outcome.report} in a browser")
+    # The demo's giant-like star has no main-sequence model by design: its refusal is part of the demonstration,
+    # so `radwalk demo` (and `make demo`) exit 0 when the only failures are those.
+    if outcome.failed and outcome.failed == len(designed):
+        return 0
     return exit_status(outcome)

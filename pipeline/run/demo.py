@@ -49,7 +49,8 @@ def demo_recovery(out_dir, truths_path, level: float = 0.95, names=("mass", "Z",
     dict
         ``converged`` (stars counted), ``inside`` (name -> stars whose truth is inside),
         ``all_inside`` (stars with every truth inside), ``outside`` (name -> ids),
-        ``stars`` (id -> {name: (lower, upper, truth)}).
+        ``stars`` (id -> {name: (lower, upper, truth)}), ``refused_as_designed`` (id -> the truths' note, for
+        failed stars that the truths mark as having no model: no true mass).
     """
     from astropy.table import Table
 
@@ -57,9 +58,11 @@ def demo_recovery(out_dir, truths_path, level: float = 0.95, names=("mass", "Z",
     truths = Table.read(truths_path)
     by_id = {str(r["id"]): r for r in truths}
     res = {"converged": 0, "inside": dict.fromkeys(names, 0), "all_inside": 0,
-           "outside": {n: [] for n in names}, "stars": {}}
+           "outside": {n: [] for n in names}, "stars": {}, "refused_as_designed": {}}
     for doc in summary_docs(out, [CatalogEntry(0, i, None, None) for i in by_id]):
         t = by_id[doc["id"]]
+        if doc.get("status") == "failed" and not math.isfinite(float(t["mass"])):
+            res["refused_as_designed"][doc["id"]] = str(t["note"]) if "note" in t.colnames else ""
         if doc.get("status") != "ok" or not all(math.isfinite(float(t[n])) for n in names):
             continue
         s = doc["sampler"]
