@@ -1,7 +1,7 @@
 """Figures of one fitted star and of a whole catalog, written as PNG files.
 
 Per star (from :class:`radwalk.results.products.FitProducts`): a corner plot of the fitted
-parameters, a corner plot of the transport timescales, the walkers' traces, the
+parameters, a corner plot of the transport timescales, the walkers' traces and log-probability, the
 radial profile with credible bands, a posterior-predictive check of R, L and
 T_eff and, when several opacity laws were fitted, their comparison.  Per
 catalog (from the per-star summary documents): an HR diagram and the
@@ -183,6 +183,11 @@ def _place_grid(fig: Figure, nrows: int, ncols: int, left: float, right: float, 
 def _axes_width(ax) -> float:
     """Width of an axes in inches."""
     return ax.get_position().width * ax.figure.get_figwidth()
+
+
+def _axes_height(ax) -> float:
+    """Height of an axes in inches."""
+    return ax.get_position().height * ax.figure.get_figheight()
 
 
 def _note(fig: Figure, lines, y: float = 0.01):
@@ -427,6 +432,22 @@ def _log_prob_limits(lp: np.ndarray, burn: int, best: float = -np.inf):
     The walkers start near the MAP but may wander far down during burn-in;
     those excursions would squeeze the sampled range into a line, so they may
     run off the bottom of the panel (the figure says so).
+
+    Parameters
+    ----------
+    lp : ndarray [steps, walkers]
+        The walkers' log posterior.
+    burn : int
+        Burn-in steps.
+    best : float
+        The MAP's log posterior (kept inside the panel).
+
+    Returns
+    -------
+    (float, float) or None
+        The limits; None when no value is finite.
+    bool
+        Whether some (burn-in) values lie below the panel.
     """
     after = lp[burn:][np.isfinite(lp[burn:])]
     finite = lp[np.isfinite(lp)]
@@ -680,12 +701,12 @@ def predictive_figure(products: FitProducts) -> Figure:
                 ax.text(0.5, 0.5, "no finite prediction", transform=ax.transAxes, ha="center")
             unit = unit_tex(output_unit(key))
             if measured:
-                ax.axvspan(value - err, value + err, color="0.5", alpha=0.22, lw=0, label=r"observed $\pm1\sigma$")
+                ax.axvspan(value - err, value + err, color="0.5", alpha=0.22, lw=0, label="observed ±1σ")
                 ax.axvline(value, color=OBSERVED, lw=1.6, label="observed")
                 ax.set_title(f"{title}: observed {_value_tex(value, err)} ${unit}$")
                 if pred.size:
                     z = (np.median(pred) - value) / err
-                    ax.text(0.02, 0.96, f"median - observed = {z:+.2f}" + r" $\sigma$", transform=ax.transAxes,
+                    ax.text(0.02, 0.96, f"median - observed = {z:+.2f} σ", transform=ax.transAxes,
                             ha="left", va="top", fontsize=9)
             else:
                 ax.set_title(f"{title}: not measured")
@@ -694,7 +715,7 @@ def predictive_figure(products: FitProducts) -> Figure:
             ax.set_ylim(0, ax.get_ylim()[1] * 1.18)  # room for the text at the top
         handles = [Patch(color=POSTERIOR, alpha=0.55, label="posterior predictive"),
                    Line2D([], [], color=OBSERVED, lw=1.6, label="observed"),
-                   Patch(color="0.5", alpha=0.22, label=r"observed $\pm1\sigma$")]
+                   Patch(color="0.5", alpha=0.22, label="observed ±1σ")]
         fig.legend(handles=handles, loc="lower center", bbox_to_anchor=(0.5, 0.0), ncols=3, frameon=False)
         fig.suptitle(head, fontsize=12, y=1 - _PAD / fig.get_figheight(), va="top")
     return fig
@@ -715,9 +736,13 @@ def opacity_comparison_figure(comparison: dict) -> Figure:
         some = next(iter(comparison.values()))
         head = wrap_text(f"{plain(some.star.id)}: the same star under {len(comparison)} opacity laws", 11 - 0.3, 12)
         extra = _text_height(head, 12) - _text_height("", 12)
-        fig = Figure(figsize=(11, 4.4 + extra))
+        # the legends go under the panels, one row per law: over the histograms they hid the data
+        legend_h = _text_height("\n" * len(comparison), 9, spacing=1.45) + 0.1
+        fig = Figure(figsize=(11, 4.4 + extra + legend_h))
         ax_m, ax_t = fig.subplots(1, 2)
-        _place_grid(fig, 1, 2, left=0.75, right=0.2, bottom=0.6, top=0.75 + extra, wspace=0.85)
+        _place_grid(fig, 1, 2, left=0.75, right=0.2, bottom=0.6 + legend_h, top=0.75 + extra, wspace=0.85)
+        below = {"loc": "upper center", "bbox_to_anchor": (0.5, -0.5 / _axes_height(ax_m)), "frameon": False,
+                 "borderaxespad": 0.0}
         masses = {op: _mass_samples(p) for op, p in comparison.items()}
         times = {}
         for op, p in comparison.items():
@@ -739,7 +764,7 @@ def opacity_comparison_figure(comparison: dict) -> Figure:
                 ax_m.hist(m, bins=edges, density=True, histtype="step", lw=1.6, color=f"C{i}",
                           label=f"{plain(op)}: {estimate_tex(*q)}")
                 ax_m.axvline(q[1], color=f"C{i}", ls=":", lw=1)
-            ax_m.legend(title="opacity law (median, 16-84 %)", frameon=False)
+            ax_m.legend(title="opacity law (median, 16-84 %)", **below)
         else:
             ax_m.text(0.5, 0.5, "mass not fitted", transform=ax_m.transAxes, ha="center")
         ax_m.set_xlabel(r"$M\,[M_\odot]$")
@@ -760,7 +785,7 @@ def opacity_comparison_figure(comparison: dict) -> Figure:
                           histtype="step", lw=1.6, color=f"C{i}", label=f"{plain(op)}: {estimate_tex(*q)} yr")
                 ax_t.axvline(q[1], color=f"C{i}", ls=":", lw=1)
             ax_t.set_xscale("log")
-            ax_t.legend(title="opacity law (median, 16-84 %)", frameon=False)
+            ax_t.legend(title="opacity law (median, 16-84 %)", **below)
         else:
             ax_t.text(0.5, 0.5, "no finite diffusion time", transform=ax_t.transAxes, ha="center")
         ax_t.set_xlabel(latex_label("diffusion_time"))
