@@ -396,7 +396,7 @@ def corner_timescales_figure(products: FitProducts) -> Figure:
             ax = fig.add_subplot()
             ax.set_axis_off()
             ax.text(0.5, 0.6, "no timescale has a spread to show", ha="center", fontsize=12)
-            ax.set_title(title)
+            ax.set_title(wrap_text(title, fig.get_figwidth() - 0.3, STYLE["axes.titlesize"]))
             _note(fig, notes)
             return fig
         labels = [r"$\log_{10}$ " + latex_label(nm) for nm in names]

@@ -49,6 +49,10 @@ def drawn_texts(fig):
     ticklabels = set()
     for ax in fig.axes:
         for axis in (ax.xaxis, ax.yaxis):
+            if not ax.axison:  # an axes drawn without its axes: no tick labels
+                ticklabels.update(t for tick in axis.get_major_ticks() + axis.get_minor_ticks()
+                                  for t in (tick.label1, tick.label2))
+                continue
             lo, hi = sorted(axis.get_view_interval())
             for tick in axis.get_major_ticks() + axis.get_minor_ticks():
                 ticklabels.update((tick.label1, tick.label2))
@@ -107,3 +111,12 @@ def test_nothing_clipped_in_the_comparison(long_named, long_named_no_luminosity)
     other = dataclasses.replace(long_named_no_luminosity, opacity="combined")
     fig = plots.opacity_comparison_figure({"combined": long_named, "combined, luminosity not measured": other})
     assert outside(fig) == []
+
+
+def test_nothing_clipped_in_a_timescale_corner_with_one_or_no_column(long_named):
+    n = len(long_named.derived["diffusion_time"])
+    one = dict(long_named.derived, kelvin_helmholtz_time=np.zeros(n), dynamical_time=np.full(n, np.inf),
+               diffusion_time_radiative_core=np.full(n, np.nan))
+    assert outside(plots.corner_timescales_figure(dataclasses.replace(long_named, derived=one))) == []
+    none = {k: v for k, v in one.items() if k != "diffusion_time"}
+    assert outside(plots.corner_timescales_figure(dataclasses.replace(long_named, derived=none))) == []
