@@ -1,7 +1,7 @@
 """Figures of one fitted star and of a whole catalog, written as PNG files.
 
 Per star (from :class:`radwalk.results.products.FitProducts`): a corner plot of the fitted
-parameters, a corner plot of the transport timescales, the walkers' traces, the
+parameters, a corner plot of the transport timescales, the walkers' traces and log-probability, the
 radial profile with credible bands, a posterior-predictive check of R, L and
 T_eff and, when several opacity laws were fitted, their comparison.  Per
 catalog (from the per-star summary documents): an HR diagram, the
@@ -32,6 +32,7 @@ if "matplotlib.pyplot" not in sys.modules:
 
 import corner  # noqa: E402
 import numpy as np  # noqa: E402
+from matplotlib.collections import LineCollection  # noqa: E402
 from matplotlib.figure import Figure  # noqa: E402
 from matplotlib.lines import Line2D  # noqa: E402
 from matplotlib.patches import Patch  # noqa: E402
@@ -128,6 +129,42 @@ def _value_tex(v: float, e: float) -> str:
     return f"{v:.{dec}f} ± {e:.{dec}f}"
 
 
+_PAD = 0.08  # inches between a figure's edge, its title and its notes
+# Average advance of DejaVu Sans (matplotlib's default font) per character, in ems: about 0.55 for mixed
+# text; a little more so that a line of digits or capitals still fits (checked by tests/report/test_figure_edges.py).
+_EM_PER_CHAR = {False: 0.6, True: 0.67}
+
+
+def wrap_text(text: str, width_in: float, fontsize: float, bold: bool = False) -> str:
+    """``text`` wrapped to lines that fit ``width_in`` inches at ``fontsize`` points (each line on its own).
+
+    Parameters
+    ----------
+    text : str
+        Plain text or text with short mathtext pieces (each counted by its source length, which is longer
+        than what it draws: a safe side).
+    width_in : float, inch
+        Room for a line.
+    fontsize : float, pt
+        Font size of the text.
+    bold : bool
+        Bold text is wider.
+
+    Returns
+    -------
+    str
+        The wrapped text; ``\n`` in ``text`` are kept.
+    """
+    chars = max(20, int(width_in * 72.0 / (fontsize * _EM_PER_CHAR[bold])))
+    return "\n".join(textwrap.fill(line, chars, break_on_hyphens=False) if line else line
+                     for line in text.split("\n"))
+
+
+def _text_height(text: str, fontsize: float, spacing: float = 1.2) -> float:
+    """Height in inches of ``text``'s lines at ``fontsize`` points (matplotlib's line spacing 1.2)."""
+    return (text.count("\n") + 1) * fontsize * spacing / 72.0
+
+
 def _place_grid(fig: Figure, nrows: int, ncols: int, left: float, right: float, bottom: float, top: float,
                 wspace: float = 0.0, hspace: float = 0.0):
     """Places a figure's grid of axes with margins and gaps given in inches.
@@ -144,9 +181,19 @@ def _place_grid(fig: Figure, nrows: int, ncols: int, left: float, right: float, 
                         wspace=wspace / axis_w, hspace=hspace / axis_h)
 
 
+def _axes_width(ax) -> float:
+    """Width of an axes in inches."""
+    return ax.get_position().width * ax.figure.get_figwidth()
+
+
+def _axes_height(ax) -> float:
+    """Height of an axes in inches."""
+    return ax.get_position().height * ax.figure.get_figheight()
+
+
 def _note(fig: Figure, lines, y: float = 0.01):
     if lines:
-        text = "\n".join(textwrap.fill(s, 110) for s in lines)
+        text = wrap_text("\n".join(lines), fig.get_figwidth() - 0.2, 8)
         fig.text(0.01, y, text, fontsize=8, color="0.3", ha="left", va="bottom")
 
 
@@ -199,18 +246,36 @@ def _corner_figure(data: np.ndarray, labels, ranges, truths=None):
 
 
 def _corner_header(fig: Figure, title: str, handles, lines):
-    """Title and notes in the room above the grid; the legend in the empty upper-right triangle."""
-    width = fig.get_figwidth()
-    fig.text(0.015, 0.995, title, ha="left", va="top", fontsize=12, weight="bold")
-    if lines:
-        chars = max(40, int(width * 13))
-        fig.text(0.015, 0.995 - 0.3 / fig.get_figheight(), "\n".join(textwrap.fill(s, chars) for s in lines),
-                 ha="left", va="top", fontsize=8.5, color="0.3")
+    """Title and notes in room above the grid, the figure grown to fit them; the legend in the empty
+    upper-right triangle (below the notes when the grid is a single panel)."""
+    width, height = fig.get_size_inches()
+    bottom, grid_top = fig.subplotpars.bottom * height, fig.subplotpars.top * height
+    title = wrap_text(title, width - 0.25, 12, bold=True)
+    notes = wrap_text("\n".join(lines), width - 0.25, 8.5) if lines else ""
+    title_h = _text_height(title, 12)
+    notes_h = _text_height(notes, 8.5) if notes else 0.0
+    single = len(fig.axes) == 1
+    legend_h = _text_height("\n" * (len(handles) - 1), 9.5, spacing=1.7) + 0.1 if single and handles else 0.0
+    # the diagonal panels' titles (an estimate with sub- and superscripts, maybe a second line) stand above
+    # the grid's top row
+    room = _PAD + title_h + _PAD + notes_h + legend_h + 0.55
+    height = grid_top + room
+    fig.set_size_inches(width, height)
+    fig.subplots_adjust(bottom=bottom / height, top=grid_top / height)
+    left = 0.1 / width
+    y = 1 - _PAD / height
+    fig.text(left, y, title, ha="left", va="top", fontsize=12, weight="bold")
+    y -= (title_h + _PAD) / height
+    if notes:
+        fig.text(left, y, notes, ha="left", va="top", fontsize=8.5, color="0.3")
+        y -= notes_h / height
     if handles:
-        grid_top, grid_right = fig.subplotpars.top, fig.subplotpars.right
-        single = len(fig.axes) == 1
-        anchor = (0.99, 0.995 - 0.3 / fig.get_figheight()) if single else (grid_right, grid_top)
-        fig.legend(handles=handles, loc="upper right", bbox_to_anchor=anchor, frameon=False, fontsize=9.5)
+        if single:
+            fig.legend(handles=handles, loc="upper left", bbox_to_anchor=(left, y), frameon=False, fontsize=9.5,
+                       borderaxespad=0, borderpad=0.2)
+        else:
+            fig.legend(handles=handles, loc="upper right", frameon=False, fontsize=9.5,
+                       bbox_to_anchor=(fig.subplotpars.right, fig.subplotpars.top))
 
 
 def corner_parameters_figure(products: FitProducts) -> Figure:
@@ -332,7 +397,7 @@ def corner_timescales_figure(products: FitProducts) -> Figure:
             ax = fig.add_subplot()
             ax.set_axis_off()
             ax.text(0.5, 0.6, "no timescale has a spread to show", ha="center", fontsize=12)
-            ax.set_title(title)
+            ax.set_title(wrap_text(title, fig.get_figwidth() - 0.3, STYLE["axes.titlesize"]))
             _note(fig, notes)
             return fig
         labels = [r"$\log_{10}$ " + latex_label(nm) for nm in names]
@@ -349,39 +414,100 @@ def corner_timescales_figure(products: FitProducts) -> Figure:
 
 # ----------------------------------------------------------------------------- sampler trace
 
+def _walker_paths(x: np.ndarray, y: np.ndarray) -> LineCollection:
+    """One artist for every walker's path (y [steps, walkers]): one draw call instead of one Line2D each."""
+    segs = np.empty((y.shape[1], x.size, 2))
+    segs[:, :, 0] = x
+    segs[:, :, 1] = y.T
+    return LineCollection(segs, colors=POSTERIOR, linewidths=0.45, alpha=0.35, gid="walkers")
+
+
+def _mark_burn_in(ax, burn: int):
+    ax.axvspan(0, burn, color="0.88", zorder=0, lw=0)
+    ax.axvline(burn, color=MAP_COLOUR, ls="--", lw=1.2, gid="burn-in")
+
+
+def _log_prob_limits(lp: np.ndarray, burn: int, best: float = -np.inf):
+    """y-limits of the log-probability panel: every step after burn-in, the top of all and ``best`` (the MAP).
+
+    The walkers start near the MAP but may wander far down during burn-in;
+    those excursions would squeeze the sampled range into a line, so they may
+    run off the bottom of the panel (the figure says so).
+
+    Parameters
+    ----------
+    lp : ndarray [steps, walkers]
+        The walkers' log posterior.
+    burn : int
+        Burn-in steps.
+    best : float
+        The MAP's log posterior (kept inside the panel).
+
+    Returns
+    -------
+    (float, float) or None
+        The limits; None when no value is finite.
+    bool
+        Whether some (burn-in) values lie below the panel.
+    """
+    after = lp[burn:][np.isfinite(lp[burn:])]
+    finite = lp[np.isfinite(lp)]
+    if finite.size == 0:
+        return None, False
+    top = max(float(finite.max()), best if np.isfinite(best) else -np.inf)
+    bottom = float(after.min()) if after.size else float(finite.min())
+    pad = 0.06 * (top - bottom) if top > bottom else 1.0
+    lo, hi = bottom - pad, top + pad
+    return (lo, hi), bool(np.any(finite < lo))
+
+
 def trace_figure(products: FitProducts) -> Figure:
-    """Every walker's path per parameter, burn-in shaded and marked."""
+    """Every walker's path per parameter and its log-probability, burn-in shaded and marked."""
     with matplotlib.rc_context(STYLE):
         chain = products.chain
         steps, walkers, ndim = chain.chain.shape
-        fig = Figure(figsize=(9.5, 1.55 * ndim + 1.3))
-        axes = fig.subplots(ndim, 1, sharex=True, squeeze=False)[:, 0]
+        fig = Figure(figsize=(9.5, 1.55 * (ndim + 1) + 1.3))
+        axes = fig.subplots(ndim + 1, 1, sharex=True, squeeze=False)[:, 0]
         stride = max(1, steps // 3000)  # Agg draws a few thousand points per walker quickly
         x = np.arange(0, steps, stride)
         labels = [axis_label(lab, unit) for lab, unit in zip(products.param_labels, products.param_units)]
-        for j, ax in enumerate(axes):
-            ax.plot(x, chain.chain[::stride, :, j], color=POSTERIOR, lw=0.45, alpha=0.35)
-            ax.axvspan(0, chain.burn, color="0.88", zorder=0, lw=0)
-            ax.axvline(chain.burn, color=MAP_COLOUR, ls="--", lw=1.2, gid="burn-in")
+        for j, ax in enumerate(axes[:ndim]):
+            ax.add_collection(_walker_paths(x, chain.chain[::stride, :, j]), autolim=True)
+            ax.autoscale_view()
+            _mark_burn_in(ax, chain.burn)
             ax.set_ylabel(labels[j])
-            ax.text(0.995, 0.94, r"$\tau$" + f" = {chain.tau[j]:.1f} steps", transform=ax.transAxes, ha="right",
+            ax.text(0.995, 0.94, f"τ = {chain.tau[j]:.1f} steps", transform=ax.transAxes, ha="right",
                     va="top", fontsize=8.5, bbox={"fc": "white", "ec": "none", "alpha": 0.8, "pad": 1.5})
+        ax = axes[-1]
+        lp = np.asarray(chain.log_prob, dtype=float)
+        ax.add_collection(_walker_paths(x, lp[::stride]), autolim=False)
+        _mark_burn_in(ax, chain.burn)
+        if np.isfinite(chain.map_log_prob):
+            ax.axhline(chain.map_log_prob, color=MAP_COLOUR, lw=1.0, ls=":", gid="map-log-prob")
+        limits, below = _log_prob_limits(lp, chain.burn, float(chain.map_log_prob))
+        if limits is not None:
+            ax.set_ylim(*limits)
+        ax.set_ylabel("log posterior")
+        note = "dotted: maximum a posteriori" + ("; lower burn-in values off scale" if below else "")
+        ax.text(0.995, 0.06, note, transform=ax.transAxes, ha="right", va="bottom", fontsize=8.5,
+                bbox={"fc": "white", "ec": "none", "alpha": 0.8, "pad": 1.5})
         axes[0].text(0.5 * chain.burn, 0.94, "burn-in", transform=axes[0].get_xaxis_transform(), ha="center",
                      va="top", fontsize=8.5, color="0.3")
         axes[-1].set_xlabel("step")
         axes[-1].set_xlim(0, max(steps - 1, 1))
         state = "converged" if chain.converged else "NOT converged"
         head = (f"{plain(products.star.id)}: {walkers} walkers × {steps} steps, burn-in {chain.burn}, "
-                f"thin {chain.thin}, acceptance {chain.acceptance:.2f}, " + r"$\tau_\mathrm{max}$"
-                + f" = {np.max(chain.tau):.1f} steps: {state}")
+                f"thin {chain.thin}, acceptance {chain.acceptance:.2f}, "
+                f"max τ = {np.max(chain.tau):.1f} steps: {state}")
         if not chain.converged and chain.reason:
-            head += "\n" + textwrap.fill(plain(chain.reason), 120)
+            head += "\n" + plain(chain.reason)
         drawn = products.param_labels[ndim:]
         if drawn:  # parameters the likelihood never sees are drawn from their priors, not walked
             head += "\nnot sampled (drawn from their priors afterwards): " + ", ".join(_symbol(x) for x in drawn)
+        head = wrap_text(head, fig.get_figwidth() - 0.3, 10.5)
         fig.suptitle(head, fontsize=10.5, color="black" if chain.converged else MAP_COLOUR,
                      y=1 - 0.08 / fig.get_figheight())
-        _place_grid(fig, ndim, 1, left=0.85, right=0.12, bottom=0.5, top=0.22 + 0.19 * (head.count("\n") + 1),
+        _place_grid(fig, ndim + 1, 1, left=0.85, right=0.12, bottom=0.5, top=0.2 + _text_height(head, 10.5),
                     hspace=0.1)
     return fig
 
@@ -457,6 +583,35 @@ def _log_limits(band: np.ndarray, r: np.ndarray):
     return 10 ** (lo - 0.25), 10 ** (hi + 0.25)
 
 
+_SUPERSCRIPT = str.maketrans("-0123456789", "⁻⁰¹²³⁴⁵⁶⁷⁸⁹")
+
+
+def power_of_ten(value: float, _pos=None) -> str:
+    """``10ⁿ`` in plain text (Unicode superscripts) for a power of ten, "" for any other tick value."""
+    if not value > 0:
+        return ""
+    exp = round(math.log10(value))
+    return f"10{str(exp).translate(_SUPERSCRIPT)}" if math.isclose(value, 10.0**exp, rel_tol=1e-9) else ""
+
+
+def _decade_ticks(axis):
+    """Ticks of a log axis spanning two decades or more: labelled decades and a plain minor tick at the others.
+
+    matplotlib's default draws eight minor ticks per decade (about 230 Tick
+    objects over the profile's four log panels, a fifth of its time) and
+    writes each label as mathtext (a parse per distinct label); a decade
+    label in Unicode superscripts reads the same.  Shorter spans keep the
+    default ticks, whose labels need the mantissas.
+    """
+    lo, hi = sorted(axis.get_view_interval())
+    if not (lo > 0 and hi / lo >= 100.0):
+        return
+    axis.set_major_locator(LogLocator(base=10.0, numticks=8))
+    axis.set_major_formatter(FuncFormatter(power_of_ten))
+    axis.set_minor_locator(LogLocator(base=10.0, subs=(1.0,), numticks=60))
+    axis.set_minor_formatter(NullFormatter())
+
+
 def profile_figure(products: FitProducts) -> Figure:
     """Radial profiles with 68 % and 95 % credible bands over the posterior samples."""
     lo95, lo68, mid, hi68, hi95 = (BAND_PERCENTILES.index(p) for p in (2.5, 16.0, 50.0, 84.0, 97.5))
@@ -464,7 +619,9 @@ def profile_figure(products: FitProducts) -> Figure:
     with matplotlib.rc_context(STYLE):
         fig = Figure(figsize=(10, 10.5))
         grid = fig.subplots(3, 2, sharex=True)
-        _place_grid(fig, 3, 2, left=0.85, right=0.12, bottom=0.5, top=0.62, wspace=0.95, hspace=0.62)
+        head = wrap_text(f"{plain(products.star.id)}: interior profile", fig.get_figwidth() - 0.3, 12)
+        _place_grid(fig, 3, 2, left=0.85, right=0.12, bottom=0.5, top=0.4 + _text_height(head, 12), wspace=0.95,
+                    hspace=0.62)
         r = np.asarray(products.r_rel, dtype=float)
         convective = products.bands.get("convective")
         shades = []
@@ -486,6 +643,7 @@ def profile_figure(products: FitProducts) -> Figure:
             ax.grid(alpha=0.25, lw=0.5)
             if log and lim is not None:
                 ax.set_ylim(*lim)
+                _decade_ticks(ax.yaxis)
                 if np.nanmin(band[:, r > SURFACE_CUT], initial=np.inf) < lim[0] or \
                         np.nanmax(band[:, r > SURFACE_CUT], initial=-np.inf) > lim[1]:
                     ax.text(0.99, 0.02, f"off scale beyond r/R = {SURFACE_CUT:g}", transform=ax.transAxes,
@@ -503,14 +661,15 @@ def profile_figure(products: FitProducts) -> Figure:
         info.legend(handles=handles, loc="upper left", frameon=False, fontsize=10)
         zones = ("convective zones: none in any sample" if convective is not None and not shades
                  else "" if convective is not None else "convective zones: not recorded")
-        text = (f"star {plain(products.star.id)}\nopacity law: {plain(products.opacity)}\n"
+        text = (wrap_text(f"star {plain(products.star.id)}\nopacity law: {plain(products.opacity)}",
+                          _axes_width(info), 10) + "\n"
                 # a profile model that solves its interiors does so for a few evenly spaced samples only, so the
                 # number of samples behind the bands is not that of the derived quantities: none is given
                 "bands over the posterior samples\n"
                 + (f"{zones}\n" if zones else "")
                 + r"$t_\mathrm{diff}(<r) = c^{-1}\int_0^r \kappa\rho\, r'\,\mathrm{d}r'$")
         info.text(0.0, 0.45, text, transform=info.transAxes, va="top", fontsize=10)
-        fig.suptitle(f"{plain(products.star.id)}: interior profile", fontsize=12)
+        fig.suptitle(head, fontsize=12, y=1 - _PAD / fig.get_figheight(), va="top")
     return fig
 
 
@@ -524,7 +683,11 @@ def predictive_figure(products: FitProducts) -> Figure:
     with matplotlib.rc_context(STYLE):
         fig = Figure(figsize=(12, 4.2))
         axes = fig.subplots(1, len(PREDICTIVE), squeeze=False)[0]
-        _place_grid(fig, 1, len(PREDICTIVE), left=0.7, right=0.35, bottom=0.85, top=0.7, wspace=0.75)
+        head = wrap_text(f"{plain(products.star.id)}: posterior-predictive check (opacity {plain(products.opacity)})",
+                         fig.get_figwidth() - 0.3, 12)
+        extra = _text_height(head, 12) - _text_height("", 12)
+        fig.set_size_inches(12, 4.2 + extra)
+        _place_grid(fig, 1, len(PREDICTIVE), left=0.7, right=0.35, bottom=0.85, top=0.7 + extra, wspace=0.75)
         for (key, title), ax in zip(PREDICTIVE, axes):
             pred = np.asarray(products.derived.get(key, []), dtype=float)
             pred = pred[np.isfinite(pred)]
@@ -539,12 +702,12 @@ def predictive_figure(products: FitProducts) -> Figure:
                 ax.text(0.5, 0.5, "no finite prediction", transform=ax.transAxes, ha="center")
             unit = unit_tex(output_unit(key))
             if measured:
-                ax.axvspan(value - err, value + err, color="0.5", alpha=0.22, lw=0, label=r"observed $\pm1\sigma$")
+                ax.axvspan(value - err, value + err, color="0.5", alpha=0.22, lw=0, label="observed ±1σ")
                 ax.axvline(value, color=OBSERVED, lw=1.6, label="observed")
                 ax.set_title(f"{title}: observed {_value_tex(value, err)} ${unit}$")
                 if pred.size:
                     z = (np.median(pred) - value) / err
-                    ax.text(0.02, 0.96, f"median - observed = {z:+.2f}" + r" $\sigma$", transform=ax.transAxes,
+                    ax.text(0.02, 0.96, f"median - observed = {z:+.2f} σ", transform=ax.transAxes,
                             ha="left", va="top", fontsize=9)
             else:
                 ax.set_title(f"{title}: not measured")
@@ -553,10 +716,9 @@ def predictive_figure(products: FitProducts) -> Figure:
             ax.set_ylim(0, ax.get_ylim()[1] * 1.18)  # room for the text at the top
         handles = [Patch(color=POSTERIOR, alpha=0.55, label="posterior predictive"),
                    Line2D([], [], color=OBSERVED, lw=1.6, label="observed"),
-                   Patch(color="0.5", alpha=0.22, label=r"observed $\pm1\sigma$")]
+                   Patch(color="0.5", alpha=0.22, label="observed ±1σ")]
         fig.legend(handles=handles, loc="lower center", bbox_to_anchor=(0.5, 0.0), ncols=3, frameon=False)
-        fig.suptitle(f"{plain(products.star.id)}: posterior-predictive check (opacity {plain(products.opacity)})",
-                     fontsize=12)
+        fig.suptitle(head, fontsize=12, y=1 - _PAD / fig.get_figheight(), va="top")
     return fig
 
 
@@ -572,10 +734,16 @@ def _mass_samples(products: FitProducts):
 def opacity_comparison_figure(comparison: dict) -> Figure:
     """Mass and photon diffusion time under each opacity law, overlaid."""
     with matplotlib.rc_context(STYLE):
-        fig = Figure(figsize=(11, 4.4))
-        ax_m, ax_t = fig.subplots(1, 2)
-        _place_grid(fig, 1, 2, left=0.75, right=0.2, bottom=0.6, top=0.75, wspace=0.85)
         some = next(iter(comparison.values()))
+        head = wrap_text(f"{plain(some.star.id)}: the same star under {len(comparison)} opacity laws", 11 - 0.3, 12)
+        extra = _text_height(head, 12) - _text_height("", 12)
+        # the legends go under the panels, one row per law: over the histograms they hid the data
+        legend_h = _text_height("\n" * len(comparison), 9, spacing=1.45) + 0.1
+        fig = Figure(figsize=(11, 4.4 + extra + legend_h))
+        ax_m, ax_t = fig.subplots(1, 2)
+        _place_grid(fig, 1, 2, left=0.75, right=0.2, bottom=0.6 + legend_h, top=0.75 + extra, wspace=0.85)
+        below = {"loc": "upper center", "bbox_to_anchor": (0.5, -0.5 / _axes_height(ax_m)), "frameon": False,
+                 "borderaxespad": 0.0}
         masses = {op: _mass_samples(p) for op, p in comparison.items()}
         times = {}
         for op, p in comparison.items():
@@ -597,7 +765,7 @@ def opacity_comparison_figure(comparison: dict) -> Figure:
                 ax_m.hist(m, bins=edges, density=True, histtype="step", lw=1.6, color=f"C{i}",
                           label=f"{plain(op)}: {estimate_tex(*q)}")
                 ax_m.axvline(q[1], color=f"C{i}", ls=":", lw=1)
-            ax_m.legend(title="opacity law (median, 16-84 %)", frameon=False)
+            ax_m.legend(title="opacity law (median, 16-84 %)", **below)
         else:
             ax_m.text(0.5, 0.5, "mass not fitted", transform=ax_m.transAxes, ha="center")
         ax_m.set_xlabel(r"$M\,[M_\odot]$")
@@ -618,13 +786,13 @@ def opacity_comparison_figure(comparison: dict) -> Figure:
                           histtype="step", lw=1.6, color=f"C{i}", label=f"{plain(op)}: {estimate_tex(*q)} yr")
                 ax_t.axvline(q[1], color=f"C{i}", ls=":", lw=1)
             ax_t.set_xscale("log")
-            ax_t.legend(title="opacity law (median, 16-84 %)", frameon=False)
+            ax_t.legend(title="opacity law (median, 16-84 %)", **below)
         else:
             ax_t.text(0.5, 0.5, "no finite diffusion time", transform=ax_t.transAxes, ha="center")
         ax_t.set_xlabel(latex_label("diffusion_time"))
         ax_t.set_ylabel(r"probability per dex")
         ax_t.set_title("photon diffusion time, centre to surface")
-        fig.suptitle(f"{plain(some.star.id)}: the same star under {len(comparison)} opacity laws", fontsize=12)
+        fig.suptitle(head, fontsize=12, y=1 - _PAD / fig.get_figheight(), va="top")
     return fig
 
 

@@ -193,19 +193,43 @@ def test_trace_panels_and_burn_in_line(figures, products):
     fig = figures["trace"]
     chain = products.chain
     steps, walkers, ndim = chain.chain.shape
-    assert len(fig.axes) == ndim
-    for j, ax in enumerate(fig.axes):
+    assert len(fig.axes) == ndim + 1  # every parameter, then the log-probability
+    paths = [chain.chain[:, :, j] for j in range(ndim)] + [chain.log_prob]
+    for j, (ax, path) in enumerate(zip(fig.axes, paths)):
         burn = [line for line in ax.lines if line.get_gid() == "burn-in"]
         assert len(burn) == 1 and tuple(burn[0].get_xdata()) == (chain.burn, chain.burn)
-        walker_lines = [line for line in ax.lines if line.get_gid() != "burn-in"]
-        assert len(walker_lines) == walkers
-        assert np.array_equal(walker_lines[0].get_ydata(), chain.chain[:, 0, j])
-        assert ax.get_ylabel() == plots.axis_label(products.param_labels[j], products.param_units[j])
-        assert any(f"{chain.tau[j]:.1f}" in t.get_text() for t in ax.texts)
+        shaded = [p for p in ax.patches if np.allclose(p.get_extents().intervalx, ax.transData.transform(
+            [(0, 0), (chain.burn, 0)])[:, 0])]
+        assert shaded  # the burn-in span shaded on every panel alike
+        (walker_paths,) = [c for c in ax.collections if c.get_gid() == "walkers"]
+        segments = walker_paths.get_segments()
+        assert len(segments) == walkers
+        assert np.array_equal(segments[0][:, 1], path[:, 0]) and np.array_equal(segments[-1][:, 1], path[:, -1])
+        assert np.array_equal(segments[0][:, 0], np.arange(steps))
+        if j < ndim:
+            assert ax.get_ylabel() == plots.axis_label(products.param_labels[j], products.param_units[j])
+            assert any(f"{chain.tau[j]:.1f}" in t.get_text() for t in ax.texts)
+    lp_ax = fig.axes[-1]
+    assert lp_ax.get_ylabel() == "log posterior"
+    (map_line,) = [line for line in lp_ax.lines if line.get_gid() == "map-log-prob"]
+    assert map_line.get_ydata()[0] == chain.map_log_prob
+    lo, hi = lp_ax.get_ylim()  # every step after burn-in and the best one inside the panel
+    after = chain.log_prob[chain.burn:]
+    assert lo < after.min() and hi > max(chain.log_prob.max(), chain.map_log_prob)
     head = fig.get_suptitle()
     assert ("NOT converged" in head) == (not chain.converged) and "converged" in head
     assert f"burn-in {chain.burn}" in head
     assert fig.axes[-1].get_xlabel() == "step"
+
+
+def test_log_prob_limits_leave_burn_in_excursions_off_scale():
+    rng = np.random.default_rng(3)
+    lp = -5.0 + rng.standard_normal((400, 8))
+    lp[:20] -= 1e4  # walkers far down during the first steps of burn-in
+    (lo, hi), below = plots._log_prob_limits(lp, burn=50)
+    assert below and lo > -20 and hi > lp.max()
+    (lo, hi), below = plots._log_prob_limits(lp[20:], burn=30)
+    assert not below and lo < lp[50:].min()
 
 
 # ----------------------------------------------------------------------------- profile
