@@ -111,7 +111,8 @@ def test_profiles_between_tracks_agree_with_solved_stars(shipped, registry):
                         (1.83, 0.0137, 0.4), (1.83, 0.0215, 0.8), (3.4, 0.0137, 0.8), (3.4, 0.0215, 0.4)):
         life = float(shipped.lifetime_at(np.array([M * const.M_SUN]), np.array([Z]))[0])
         v = stages.defaults()
-        v.update(mass=np.array([M]), X=np.array([0.7]), Z=np.array([Z]), age=np.array([phase * life / (1e9 * const.YEAR)]))
+        v.update(mass=np.array([M]), X=np.array([0.7]), Z=np.array([Z]),
+                 age=np.array([phase * life / (1e9 * const.YEAR)]))
         r_rel, fields = stages.quick_bands(v)
         prof, tr = stages.structure(v, [np.nan], [np.nan])
         solved_r = prof.r[0] / prof.R[0]
