@@ -60,6 +60,34 @@ def small_track_grid(registry, tmp_path_factory):
     return str(path)
 
 
+@pytest.fixture(scope="session")
+def profile_error():
+    """``errors(stages, values, regions)`` -> {region: {field: (largest |error| in dex, r/R there)}}: one star's
+    stored profile (``StageSet.quick_bands``) against the star solved at the same (M, Z, age)
+    (``StageSet.structure``), over each region's lo < r/R <= hi (default one region, 0-0.95), for rho, T, kappa,
+    the mean free path and the cumulative diffusion time."""
+
+    def errors(stages, values, regions=None):
+        r_rel, fields = stages.quick_bands(values)
+        prof, tr = stages.structure(values, [np.nan], [np.nan])
+        solved_r = prof.r[0] / prof.R[0]
+        solved = {"rho": prof.rho[0], "T": prof.T[0], "kappa": tr.fields["kappa"][0],
+                  "mean_free_path": tr.fields["mean_free_path"][0],
+                  "diffusion_time_cumulative": tr.fields["diffusion_time_cumulative"][0]}
+        out = {}
+        for region, (lo, hi) in (regions or {"all": (0.0, 0.95)}).items():
+            part = (r_rel > lo) & (r_rel <= hi)
+            out[region] = {}
+            for name, v in solved.items():
+                with np.errstate(divide="ignore"):  # the cumulative time is 0 at the centre, never compared
+                    err = np.abs(np.log10(fields[name][0, part]) - np.interp(r_rel[part], solved_r, np.log10(v)))
+                k = int(np.argmax(err))
+                out[region][name] = (float(err[k]), float(r_rel[part][k]))
+        return out
+
+    return errors
+
+
 DYNAMICAL_MASSES = os.path.join(os.path.dirname(__file__), "data", "dynamical_masses.csv")
 
 

@@ -519,6 +519,21 @@ class _Axis:
         return start, w, lin, inside
 
 
+def _samples(M, Z, age):
+    """M [n] and Z, age broadcast to it (scalars or arrays), as float arrays; and n."""
+    M = np.asarray(M, dtype=float).reshape(-1)
+    n = M.size
+    Z = np.broadcast_to(np.asarray(Z, dtype=float).reshape(-1), (n,)) if np.ndim(Z) else np.full(n, float(Z))
+    age = (np.broadcast_to(np.asarray(age, dtype=float).reshape(-1), (n,)) if np.ndim(age)
+           else np.full(n, float(age)))
+    return M, Z, age, n
+
+
+def _on_main_sequence(in_mz, life, age, phase):
+    """Inside the grid's (M, Z) range with a computed lifetime, and 0 <= age <= t_MS, bool [n]."""
+    return in_mz & np.isfinite(life) & (age >= 0.0) & (phase <= 1.0 + 1e-9)
+
+
 class TrackGrid:
     """Tracks on (log M, log Z, phase) and the interpolator of every stored quantity at (M, Z, age).
 
@@ -608,11 +623,7 @@ class TrackGrid:
             Within the grid's mass and metallicity range, 0 <= age <= t_MS(M, Z), and every track the
             interpolation uses was computed.  Never raises for points outside.
         """
-        M = np.asarray(M, dtype=float).reshape(-1)
-        n = M.size
-        Z = np.broadcast_to(np.asarray(Z, dtype=float).reshape(-1), (n,)) if np.ndim(Z) else np.full(n, float(Z))
-        age = (np.broadcast_to(np.asarray(age, dtype=float).reshape(-1), (n,)) if np.ndim(age)
-               else np.full(n, float(age)))
+        M, Z, age, n = _samples(M, Z, age)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             return self._interpolate(M, Z, age, n)
 
@@ -629,7 +640,7 @@ class TrackGrid:
         im, iz, wc, lm_w, lz_w, in_mz, life = self._lifetimes(M, Z, n)
         nz, npz = self.shape[1], self.shape[2]
         phase = age / life
-        inside = in_mz & np.isfinite(life) & (age >= 0.0) & (phase <= 1.0 + 1e-9)
+        inside = _on_main_sequence(in_mz, life, age, phase)
         u = np.fmin(np.fmax(phase, 0.0), 1.0) * (npz - 1)
         ip = np.minimum(u.astype(np.intp), npz - 2)
         fp = u - ip
@@ -676,15 +687,11 @@ class TrackGrid:
         if self.profiles is None:
             raise ConfigError("this track grid carries no radial profiles (a grid file of version 1): "
                               "rebuild it with `radwalk grid build`")
-        M = np.asarray(M, dtype=float).reshape(-1)
-        n = M.size
-        Z = np.broadcast_to(np.asarray(Z, dtype=float).reshape(-1), (n,)) if np.ndim(Z) else np.full(n, float(Z))
-        age = (np.broadcast_to(np.asarray(age, dtype=float).reshape(-1), (n,)) if np.ndim(age)
-               else np.full(n, float(age)))
+        M, Z, age, n = _samples(M, Z, age)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             *_, in_mz, life = self._lifetimes(M, Z, n)
             phase = age / life
-            inside = in_mz & np.isfinite(life) & (age >= 0.0) & (phase <= 1.0 + 1e-9)
+            inside = _on_main_sequence(in_mz, life, age, phase)
             lm, lz = np.log10(M / const.M_SUN), np.log10(Z)
             safe = np.where(inside, 1.0, np.nan)
             fields = grid_profiles.interpolate(self.profiles, self.log_mass, self.log_z, np.where(inside, lm, 0.0),
@@ -698,9 +705,7 @@ class TrackGrid:
         Only the lifetime is interpolated (the support check and the age prior call this on every posterior
         evaluation, beside the relation's full interpolation).
         """
-        M = np.asarray(M, dtype=float).reshape(-1)
-        n = M.size
-        Z = np.broadcast_to(np.asarray(Z, dtype=float).reshape(-1), (n,)) if np.ndim(Z) else np.full(n, float(Z))
+        M, Z, _, n = _samples(M, Z, 0.0)
         with np.errstate(divide="ignore", invalid="ignore", over="ignore"):
             *_, in_mz, life = self._lifetimes(M, Z, n)
         return np.where(in_mz & np.isfinite(life), life, np.nan)

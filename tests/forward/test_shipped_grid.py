@@ -94,7 +94,7 @@ def test_random_tracks_re_solve_to_the_shipped_values(shipped, default_opacity):
 
 
 @pytest.mark.slow  # eight solved, aged stars: about a minute of CPU
-def test_profiles_between_tracks_agree_with_solved_stars(shipped, registry):
+def test_profiles_between_tracks_agree_with_solved_stars(shipped, registry, profile_error):
     """The profile bands' interpolation error on the shipped grid, against stars solved at the same (M, Z, age).
 
     Eight stars between the grid's tracks (masses between nodes, Z = 0.0137 and 0.0215, between the Z nodes; at
@@ -113,21 +113,10 @@ def test_profiles_between_tracks_agree_with_solved_stars(shipped, registry):
         v = stages.defaults()
         v.update(mass=np.array([M]), X=np.array([0.7]), Z=np.array([Z]),
                  age=np.array([phase * life / (1e9 * const.YEAR)]))
-        r_rel, fields = stages.quick_bands(v)
-        prof, tr = stages.structure(v, [np.nan], [np.nan])
-        solved_r = prof.r[0] / prof.R[0]
-        solved = {"rho": prof.rho[0], "T": prof.T[0], "kappa": tr.fields["kappa"][0],
-                  "mean_free_path": tr.fields["mean_free_path"][0],
-                  "diffusion_time_cumulative": tr.fields["diffusion_time_cumulative"][0]}
-        for region, (lo, hi) in PROFILE_REGIONS.items():
-            part = (r_rel > lo) & (r_rel <= hi)
-            for name, values in solved.items():
-                with np.errstate(divide="ignore"):  # the cumulative time is 0 at the centre, not compared
-                    want = np.interp(r_rel[part], solved_r, np.log10(values))
-                err = np.abs(np.log10(fields[name][0, part]) - want)
-                k = int(np.argmax(err))
-                if err[k] > worst.get((region, name), (0.0,))[0]:
-                    worst[region, name] = (float(err[k]), M, Z, phase, float(r_rel[part][k]))
+        for region, errors in profile_error(stages, v, PROFILE_REGIONS).items():
+            for name, (e, r) in errors.items():
+                if e > worst.get((region, name), (0.0,))[0]:
+                    worst[region, name] = (e, M, Z, phase, r)
     print("\nlargest profile error between tracks (dex; at M_sun, Z, phase, r/R):")
     for (region, name), (e, M, Z, phase, r) in worst.items():
         print(f"  {region:8s} {name:28s} {e:.4f}  at {M}, {Z}, {phase}, {r:.3f}")
