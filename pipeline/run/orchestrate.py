@@ -311,8 +311,6 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
     old = check_state(out, state, force)
     if old and not force:
         state["first_started"] = old.get("first_started", state["first_started"])
-    components = check_config(config)
-    costs = sampling_costs(config)
     outcome_notes = list(catalog.notices)
     todo, undrawn = [], []  # stars to fit; stored stars still without their figures
     for e in catalog:
@@ -327,12 +325,20 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         workers, note = capped_workers(workers, len(todo) + len(undrawn))
         if note:
             outcome_notes.append(note)
-    # The executor starts before any file is written, so an unanswering scheduler changes nothing.
+    # The executor starts before any file is written, so an unanswering scheduler changes nothing; and before
+    # the config check, so that its workers start (and import) while this process checks.
     if ex is None and (todo or undrawn):
         ex = make_executor(executor, workers, scheduler, config, hashes if executor == "dask" else {})
     elif ex is not None and not (todo or undrawn):
         ex.close()
         ex = None
+    try:
+        components = check_config(config)
+        costs = sampling_costs(config)
+    except BaseException:
+        if ex is not None:
+            ex.close(cancel=True)
+        raise
     cancel = True
     outcome = RunOutcome(out, out / SUMMARY_ECSV, out / SUMMARY_FITS, out / RUN_TOML,
                          stars=len(catalog), notices=outcome_notes)
