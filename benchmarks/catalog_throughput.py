@@ -1,23 +1,48 @@
-"""Catalog throughput and memory, measured in one run.
+"""Catalog throughput and memory, measured in one run, with the fixed costs split out.
 
-    python benchmarks/catalog_throughput.py [--stars 24] [--plots] [--memory 500]
+    python benchmarks/catalog_throughput.py [--stars 24] [--repeats 2] [--plots] [--memory 500]
 
 Runs the same invented catalog (demo stars repeated under new ids) with the
 local pool on 1 and 2 workers and with a Dask LocalCluster on 2 workers,
 interleaved (A B C A B C) so that load from elsewhere on the machine falls on
 all of them, and prints stars per minute and the ratios 2 workers / 1 worker
-and Dask / local, with the CPU time of the workers beside the wall time and
-the machine's load average.  ``--memory N`` also runs an N-star catalog with a minimal
-sampler and reports the peak resident memory of the main process and of the
-largest worker, against a catalog a tenth the size (flat means the catalog is
-streamed, never held with its chains).
+and Dask / local, with the CPU time of the run (main process and its workers)
+beside the wall time and the load average from /proc/loadavg before and
+after each run.
+
+Each run is also split into its phases, from the times at which the run's own
+log lines (``radwalk.run``) were emitted:
+
+Before the runs, the pool or cluster alone: started, a no-op task run on
+every slot, closed (wall and CPU seconds).
+
+``start``    from the call to the run's first log line: catalog read, config
+             check, the pool or cluster started (warm-up included where it
+             happens before the first log line);
+``first``    first-star latency: from that line to the first star stored,
+             and the part of it that is not the star's own fit (``first-fit``:
+             worker start-up, imports, grid and kernel load, task transfer);
+``steady``   the median wall seconds of one star's fit on its worker;
+``tail``     tail idle, worker-seconds: the last star on one worker while the
+             others have nothing left (sum over the last ``workers - 1``
+             stars of the time from their end to the last star's end);
+``writes``   from the last star stored to the call's return (summary tables,
+             run.toml, state file).
+
+``--memory N`` also runs an N-star catalog with a minimal sampler and reports
+the peak resident memory of the main process and of the largest worker,
+against a catalog a tenth the size (flat means the catalog is streamed, never
+held with its chains).
 """
 
 from __future__ import annotations
 
 import argparse
+import logging
 import os
+import re
 import resource
+import statistics
 import tempfile
 import time
 from pathlib import Path
@@ -26,7 +51,9 @@ from astropy.table import Table
 
 from radwalk.host.config import SamplerConfig
 from radwalk.run.demo import demo_paths
-from radwalk.run.orchestrate import load_run_config, run_catalog
+from radwalk.run.orchestrate import LOG, load_run_config, run_catalog
+
+STAR_LINE = re.compile(r"^star .* (ok|not-converged|failed) ([0-9.]+) s")
 
 
 def make_catalog(n: int, path: Path):
@@ -37,31 +64,99 @@ def make_catalog(n: int, path: Path):
     t.write(path, overwrite=True)
 
 
+def loadavg() -> str:
+    """The 1, 5 and 15 minute load averages (/proc/loadavg; os.getloadavg elsewhere)."""
+    try:
+        return " ".join(Path("/proc/loadavg").read_text().split()[:3])
+    except OSError:
+        return " ".join(f"{x:.2f}" for x in os.getloadavg())
+
+
+class _Times(logging.Handler):
+    """Keeps (perf_counter time, message) of every record of the run's logger."""
+
+    def __init__(self):
+        super().__init__(logging.INFO)
+        self.records = []
+
+    def emit(self, record):
+        self.records.append((time.perf_counter(), record.getMessage()))
+
+
+def one_run(cat: Path, out: Path, cfg, executor: str, workers: int, plots: bool) -> dict:
+    """One catalog run: wall, CPU (this process and its children) and the phases (module docstring)."""
+    times = _Times()
+    LOG.addHandler(times)
+    load0 = loadavg()
+    try:
+        t0, c0 = time.perf_counter(), os.times()
+        outcome = run_catalog(cat, out, cfg, executor=executor, workers=workers, force=True, report=False,
+                              plots=plots, quiet=True)
+        t1, c1 = time.perf_counter(), os.times()
+    finally:
+        LOG.removeHandler(times)
+    assert outcome.failed == 0, outcome.line()
+    first_line = times.records[0][0]
+    stars = [(t, float(m.group(2))) for t, msg in times.records if (m := STAR_LINE.match(msg))]
+    ends = sorted(t for t, _ in stars)
+    last = ends[-1]
+    tail = sum(last - t for t in ends[-workers:-1]) if workers > 1 else 0.0
+    first_end = min(stars)
+    return {
+        "wall": t1 - t0, "cpu": sum(c1[:4]) - sum(c0[:4]), "cpu_main": sum(c1[:2]) - sum(c0[:2]),
+        "start": first_line - t0, "first": first_end[0] - first_line, "first_fit": first_end[0] - first_line -
+        first_end[1], "steady": statistics.median(s for _, s in stars), "tail": tail, "writes": t1 - last,
+        "load": f"{load0} -> {loadavg()}", "n": len(stars),
+    }
+
+
+PHASES = ("start", "first", "first_fit", "steady", "tail", "writes")
+
+
+def executor_start(kind: str, workers: int, cfg) -> tuple[float, float]:
+    """Wall and CPU seconds (this process and its children) from starting a pool or cluster to every slot
+    having run a task that does nothing, and closing it."""
+    from radwalk.run.executors import make_executor
+
+    t0, c0 = time.perf_counter(), os.times()
+    ex = make_executor(kind, workers, None, cfg, {})
+    try:
+        pending = {ex.submit(task=os.getpid) for _ in range(ex.slots)}
+        while pending:
+            _, pending = ex.wait(pending)
+        wall = time.perf_counter() - t0
+    finally:
+        ex.close()
+    return wall, sum(os.times()[:4]) - sum(c0[:4])
+
+
 def throughput(args, work: Path):
     cat = work / "bench.ecsv"
     make_catalog(args.stars, cat)
     cfg = load_run_config(demo_paths()["config"])
-    rates = {("local", 1): [], ("local", 2): [], ("dask", 2): []}
-    cpu = {key: [] for key in rates}
-    print(f"load average before: {', '.join(f'{x:.2f}' for x in os.getloadavg())}")
+    runs = {("local", 1): [], ("local", 2): [], ("dask", 2): []}
+    print(f"{args.stars} stars, {args.repeats} repeat(s); load average before: {loadavg()}")
+    for ex, w in runs:
+        wall, cpu = executor_start(ex, w, cfg)
+        print(f"  {ex:5s} {w}: pool/cluster start to every slot ready {wall:.2f} s wall, {cpu:.2f} s CPU "
+              f"(with close); load {loadavg()}", flush=True)
     for _ in range(args.repeats):
-        for ex, w in rates:
-            t0, c0 = time.perf_counter(), os.times()
-            out = run_catalog(cat, work / f"run-{ex}{w}", cfg, executor=ex, workers=w, force=True,
-                              report=False, plots=args.plots, quiet=True)
-            c1 = os.times()
-            rates[(ex, w)].append(60 * args.stars / (time.perf_counter() - t0))
-            # this process and its worker processes (a local pool's and a LocalCluster's are both children)
-            cpu[(ex, w)].append(sum(c1[:4]) - sum(c0[:4]))
-            assert out.failed == 0, out.line()
-    mean = {k: sum(v) / len(v) for k, v in rates.items()}
-    for (ex, w), v in rates.items():
-        per_star = sum(cpu[(ex, w)]) / len(cpu[(ex, w)]) / args.stars
-        print(f"{ex:5s} {w} worker(s): {mean[(ex, w)]:6.2f} stars/min  (runs: {', '.join(f'{x:.2f}' for x in v)}); "
-              f"{per_star:.1f} s CPU per star")
-    print(f"2 workers / 1 worker (local): {mean[('local', 2)] / mean[('local', 1)]:.2f}  (target >= 1.8)")
-    print(f"dask / local (2 workers):     {mean[('dask', 2)] / mean[('local', 2)]:.2f}  (target within 0.9-1.1)")
-    print(f"load average after: {', '.join(f'{x:.2f}' for x in os.getloadavg())}")
+        for ex, w in runs:
+            r = one_run(cat, work / f"run-{ex}{w}", cfg, ex, w, args.plots)
+            runs[(ex, w)].append(r)
+            print(f"  {ex:5s} {w}: {60 * args.stars / r['wall']:6.2f} stars/min, wall {r['wall']:.1f} s, CPU "
+                  f"{r['cpu']:.1f} s ({r['cpu_main']:.1f} s main); " + ", ".join(
+                      f"{k} {r[k]:.2f}" for k in PHASES) + f" s; load {r['load']}", flush=True)
+    rate = {k: statistics.mean(60 * args.stars / r["wall"] for r in v) for k, v in runs.items()}
+    print("\nmeans over the repeats (seconds; tail in worker-seconds):")
+    for (ex, w), v in runs.items():
+        cpu = statistics.mean(r["cpu"] for r in v)
+        print(f"{ex:5s} {w} worker(s): {rate[(ex, w)]:6.2f} stars/min, {cpu / args.stars:.2f} s CPU per star "
+              f"(wall {statistics.mean(r['wall'] for r in v):.1f} s, CPU {cpu:.1f} s); "
+              + ", ".join(f"{k} {statistics.mean(r[k] for r in v):.2f}" for k in PHASES))
+    print(f"2 workers / 1 worker (local): {rate[('local', 2)] / rate[('local', 1)]:.2f}  (target >= 1.8)")
+    print(f"dask / local (2 workers):     {rate[('dask', 2)] / rate[('local', 2)]:.2f}  (target within 0.9-1.1)")
+    print(f"load average after: {loadavg()}")
 
 
 def memory(n: int, work: Path):

@@ -111,16 +111,15 @@ class FitResult:
     def write(self, folder) -> Path:
         """Writes summary.json, chain.h5 and the star's plots into ``folder`` (created); returns the folder."""
         from radwalk.report.figures import write_star_plots
-        from radwalk.results.chain import ChainFile
+        from radwalk.results.chain import write_chain_file
         from radwalk.results.files import write_json
         from radwalk.results.layout import STAR_SUMMARY, chain_file_name
 
         folder = Path(folder)
         folder.mkdir(parents=True, exist_ok=True)
-        c = self.chain
-        store = ChainFile(folder / chain_file_name(self._products.opacity, primary=True), c.names,
-                          c.chain.shape[1])
-        store.append(c.chain, c.log_prob, steps=c.steps, tau=c.tau, converged=bool(c.converged))
+        # the command line's chain file: units, burn-in, seed, versions and the derived samples beside the chain
+        write_chain_file(folder / chain_file_name(self._products.opacity, primary=True), self._products,
+                         self.summary, self._config.seed)
         doc = dict(self.summary)
         doc["plots"] = write_star_plots(self._products, folder)
         write_json(folder / STAR_SUMMARY, doc)

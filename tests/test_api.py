@@ -9,6 +9,7 @@ import pytest
 import radwalk
 from radwalk.cli.main import main
 from radwalk.errors import RadwalkError
+from radwalk.results.chain import read_chain
 
 # Two band stars: the profile bands are not what these tests check, and each band star is a solved star (~2 s).
 FAST = {"settings": {"band_stars": 2},
@@ -37,6 +38,26 @@ def test_fit_summary_is_the_summary_json_of_the_command_line(result, tmp_path, c
     api = json.loads(json.dumps(result.summary, allow_nan=False), parse_constant=_refuse)  # strict JSON content
     for key in ("id", "status", "parameters", "derived", "observed"):
         assert api[key] == cli[key], key
+
+
+def test_write_gives_the_chain_file_of_the_command_line(result, tmp_path, capsys):
+    # the same star, config and seed through `radwalk fit` and through FitResult.write: the same chain.h5
+    toml = tmp_path / "fast.toml"
+    toml.write_text("[settings]\nband_stars = 2\n[sampler]\n"
+                    + "\n".join(f"{k} = {v}" for k, v in FAST["sampler"].items()) + "\n")
+    code = main(["fit", "--id", "api star", "--radius", "1.02", "0.02", "--luminosity", "1.05", "0.05", "--teff",
+                 "5800", "60", "--config", str(toml), "--seed", "4", "--out", str(tmp_path / "cli"), "--no-plots"])
+    capsys.readouterr()
+    assert code == 0
+    cli = read_chain(tmp_path / "cli" / "chain.h5")
+    api = read_chain(result.write(tmp_path / "api") / "chain.h5")
+    assert set(api) == set(cli)  # every attribute and dataset, the derived group among them
+    assert api["units"] == cli["units"] and api["star_id"] == "api star" and api["seed"] == 4
+    assert (api["burn"], api["thin"], api["stages"]) == (cli["burn"], cli["thin"], cli["stages"])
+    np.testing.assert_array_equal(api["chain"], cli["chain"])
+    assert set(api["derived"]) == set(cli["derived"]) and api["derived_names"] == cli["derived_names"]
+    for name, values in cli["derived"].items():
+        np.testing.assert_array_equal(api["derived"][name], values)
 
 
 def test_samples_are_a_qtable_of_every_parameter_and_derived_quantity_with_units(result):

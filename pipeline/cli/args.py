@@ -11,7 +11,7 @@ from radwalk.host import config as config_mod
 from radwalk.host.stages import STAGE_TABLE, STAGES
 
 EXIT_CODES_TEXT = ("exit status: 0 every star fitted (or the command done), 1 some stars failed "
-                   "(or a plugin check failed), 2 bad input (options, config, catalog or paths); "
+                   "(or some grid tracks, or a plugin check), 2 bad input (options, config, catalog or paths); "
                    "130 interrupted, 143 terminated (run again to resume)")
 """The exit statuses every subcommand keeps to, shown in ``--help``."""
 

@@ -141,11 +141,27 @@ def cmd_grid_build(args):
         print(f"warning: {path} could not be written ({exc.strerror or exc})")
     header = dict(grid.header, path=str(path), size_bytes=path.stat().st_size if path.is_file() else 0)
     print(describe(header))
-    for f in grid.header["build"]["failed"]:
-        print(f"  failed: {f['mass_msun']:.4g} M_sun, Z = {f['Z']:.4g}: {f['reason']}")
     if path.is_file():
         print(f"written: {path}")
-    return 0
+    return failed_tracks_status(grid)
+
+
+def failed_tracks_status(grid) -> int:
+    """The exit status of a grid build: 0 when every track was computed, 1 when some failed (named on stderr).
+
+    A failed track is NaN in the grid (:func:`radwalk.forward.model_grid.build_grid`); the grid is still
+    written, and a fit whose star needs that track gets no model there.
+    """
+    import sys
+
+    failed = grid.header["build"]["failed"]
+    if not failed:
+        return 0
+    print(f"radwalk: {len(failed)} of {grid.header['build']['tracks']} tracks failed (NaN in the grid):",
+          file=sys.stderr)
+    for f in failed:
+        print(f"  failed: {f['mass_msun']:.4g} M_sun, Z = {f['Z']:.4g}: {f['reason']}", file=sys.stderr)
+    return 1
 
 
 def cmd_grid_list(args):

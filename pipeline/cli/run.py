@@ -60,15 +60,11 @@ def exit_status(outcome: RunOutcome) -> int:
 
 
 def run_with_progress(catalog, out, config, quiet: bool = False, **options) -> RunOutcome:
-    """:func:`radwalk.run.orchestrate.run_catalog` with progress fit for where stderr goes.
+    """:func:`radwalk.run.orchestrate.run_catalog`, which fits its progress to where stderr goes.
 
     On a terminal the runner's bars; elsewhere (a log file, a pipe) the runner's
     per-star log lines on stderr instead, with no carriage-return frames.
     """
-    from radwalk.cli.progress import plain_lines, stderr_is_terminal
-    from radwalk.run.orchestrate import LOG, run_catalog
+    from radwalk.run.orchestrate import run_catalog
 
-    if quiet or stderr_is_terminal():
-        return run_catalog(catalog, out, config, quiet=quiet, **options)
-    with plain_lines(LOG.name):
-        return run_catalog(catalog, out, config, quiet=True, **options)
+    return run_catalog(catalog, out, config, quiet=quiet, **options)

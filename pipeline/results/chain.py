@@ -181,6 +181,35 @@ def describe_chain_file(path, products, summary: dict, seed: int, versions: dict
             d.attrs["description"] = description(name)
 
 
+def write_chain_file(path, products, summary: dict, seed: int) -> Path:
+    """Writes a finished fit's chain file at once: the file a fit writes chunk by chunk, described alike.
+
+    The fit writes its chain with :class:`ChainFile` while it samples and finishes the file with
+    :func:`describe_chain_file`; a fit held in memory (``radwalk.fit(...).write(folder)``) goes through
+    the same two, so both files carry the same datasets, attributes and ``derived`` group.
+
+    Parameters
+    ----------
+    path : str or Path
+        The chain file to write (replaced if it exists).
+    products : FitProducts
+        The fit's products; ``products.chain`` is the whole chain [steps, walkers, ndim].
+    summary : dict
+        The fit's summary (or the summary.json document, which holds it).
+    seed : int
+        The run's seed.
+
+    Returns
+    -------
+    Path
+    """
+    chain = products.chain
+    store = ChainFile(Path(path), chain.names, chain.chain.shape[1])
+    store.append(chain.chain, chain.log_prob, steps=chain.steps, tau=chain.tau, converged=bool(chain.converged))
+    describe_chain_file(path, products, summary, seed)
+    return Path(path)
+
+
 def _decoded(values) -> list[str]:
     return [v.decode() if isinstance(v, bytes) else str(v) for v in values]
 

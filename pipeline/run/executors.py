@@ -136,6 +136,23 @@ def _die_with_parent():
         os._exit(1)
 
 
+def warm_worker() -> int:
+    """Imports what the per-star task needs (numpy, scipy, astropy, emcee, h5py, numba), so that a worker
+    started while the run prepares pays them then, not with its first star; returns the process id.
+
+    Only imports: the stages (which may build a relation grid into the cache folder) are built by the
+    run's own process first (:func:`radwalk.run.orchestrate.check_config`), and by the workers after.
+    An import that fails here fails again, with its real message, in the star's own task.
+    """
+    try:
+        import radwalk.inference._fused_kernel  # noqa: F401  (numba, the heaviest import)
+        import radwalk.inference.fit  # noqa: F401
+        import radwalk.run.star_figures  # noqa: F401
+    except Exception:  # noqa: BLE001  (the star's task reports it)
+        pass
+    return os.getpid()
+
+
 def _pool_init():
     # The parent handles Ctrl-C and SIGTERM (sent to the whole process group by a terminal or a batch
     # scheduler) and stops the pool; workers must not each print a traceback, nor die first and make the
@@ -144,6 +161,7 @@ def _pool_init():
     signal.signal(signal.SIGTERM, signal.SIG_IGN)
     os.environ.setdefault("MPLBACKEND", "Agg")
     _die_with_parent()
+    warm_worker()
 
 
 def _start_method() -> str:
@@ -163,6 +181,9 @@ class _LocalExecutor:
         ctx = mp.get_context(_start_method())
         self.pool = cf.ProcessPoolExecutor(max_workers=workers, mp_context=ctx, initializer=_pool_init)
         self.slots = workers
+        # A spawned pool starts a process per submitted task while none is idle: one task per slot starts
+        # them all now, so they import (in _pool_init) while the run checks its config, not with their first star.
+        self._started = [self.pool.submit(os.getpid) for _ in range(workers)]
 
     def submit(self, *args, task=_star_task):
         return self.pool.submit(task, *args)
@@ -224,6 +245,10 @@ class _DaskExecutor:
         self.slots = max(1, sum(self.client.nthreads().values()))
         if hashes:
             self._ship(hashes)
+        # each worker imports what a star needs while the run checks its config (kept: a released future
+        # would be cancelled)
+        self._warming = [self.client.submit(warm_worker, pure=False, workers=[addr], allow_other_workers=False)
+                         for addr in self.client.nthreads()]
 
     def _ship(self, hashes: dict):
         with tempfile.TemporaryDirectory(prefix="radwalk-plugins-") as tmp:

@@ -155,6 +155,22 @@ def check_config(config: RunConfig):
     return used
 
 
+def sampling_costs(config: RunConfig) -> list[str]:
+    """What sampling each law's opacity parameters costs (:func:`radwalk.inference.cost.opacity_sampling_cost`):
+    one line per law whose parameters the run samples, as ``radwalk fit`` prints before its fit."""
+    from radwalk.host.config import refuse_sampled_opacity
+    from radwalk.inference.cost import opacity_sampling_cost
+    from radwalk.inference.fit import stages_for
+
+    lines = []
+    for op in config.opacity_names():
+        stages = stages_for(config, op)
+        sampled = refuse_sampled_opacity(config, stages)
+        if sampled:
+            lines.append(opacity_sampling_cost(config, stages, sampled))
+    return lines
+
+
 # -- the run ----------------------------------------------------------------------
 def _setup_log(out: Path) -> logging.Handler:
     handler = logging.FileHandler(out / LOG_FILE, mode="a", encoding="utf-8")
@@ -207,7 +223,8 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
     report : bool
         Write the HTML report (radwalk.report.pages) at the end.
     quiet : bool
-        No progress bar.
+        No progress.  Otherwise bars on stderr when it is a terminal; elsewhere (a log file, a pipe, a
+        notebook's captured stream) the run's log lines on stderr instead, with no carriage-return frames.
     plots : bool
         Draw the per-star PNGs once every star is fitted and stored (also those a stopped or
         ``plots=False`` run left out); off, none is drawn and the report says so.
@@ -216,6 +233,20 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
     -------
     RunOutcome
     """
+    from radwalk.cli.progress import plain_lines, stderr_is_terminal
+
+    if quiet or stderr_is_terminal():
+        return _run_catalog(catalog_path, out_dir, config, executor, workers, scheduler, force, report, quiet,
+                            plots, echo=True)
+    with plain_lines(LOG.name):  # a bar's frames would pile up into one line: the per-star lines instead
+        return _run_catalog(catalog_path, out_dir, config, executor, workers, scheduler, force, report, True,
+                            plots, echo=False)
+
+
+def _run_catalog(catalog_path, out_dir, config, executor, workers, scheduler, force, report, quiet, plots,
+                 echo: bool) -> RunOutcome:
+    """run_catalog with its progress chosen: bars unless ``quiet``; ``echo``: no handler copies the log
+    lines to stderr, so the few that must be seen before the stars start are printed there too."""
     t0 = time.perf_counter()
     started = now()
     catalog = read_catalog(catalog_path, config.columns)
@@ -242,7 +273,7 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
         out = prepare_output(out_dir, force)
         with folder_lock(out), _sigterm_interrupts():
             return _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet,
-                               plots, t0, started, ex)
+                               plots, t0, started, ex, echo=echo)
     except BaseException:
         if ex is not None:
             ex.close(cancel=True)
@@ -273,8 +304,11 @@ def _sigterm_interrupts():
 
 
 def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, force, report, quiet, plots, t0, started,
-                ex=None):
-    """run_catalog's work once it holds the output folder's lock (``ex``: an executor already connected)."""
+                ex=None, echo=False):
+    """run_catalog's work once it holds the output folder's lock (``ex``: an executor already connected).
+
+    ``echo``: the lines that must be seen before the stars start (the cost of sampling an opacity
+    parameter) are also printed on stderr, where no handler copies the log there."""
     # a killed run's half-written files: nothing else writes here while the lock is held
     for folder in (out, out / REPORT_DIR, *(p for p in (out / STARS_DIR).iterdir() if p.is_dir())):
         remove_leftovers(folder)
@@ -282,7 +316,6 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
     old = check_state(out, state, force)
     if old and not force:
         state["first_started"] = old.get("first_started", state["first_started"])
-    components = check_config(config)
     outcome_notes = list(catalog.notices)
     todo, undrawn = [], []  # stars to fit; stored stars still without their figures
     for e in catalog:
@@ -297,12 +330,20 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
         workers, note = capped_workers(workers, len(todo) + len(undrawn))
         if note:
             outcome_notes.append(note)
-    # The executor starts before any file is written, so an unanswering scheduler changes nothing.
+    # The executor starts before any file is written, so an unanswering scheduler changes nothing; and before
+    # the config check, so that its workers start (and import) while this process checks.
     if ex is None and (todo or undrawn):
         ex = make_executor(executor, workers, scheduler, config, hashes if executor == "dask" else {})
     elif ex is not None and not (todo or undrawn):
         ex.close()
         ex = None
+    try:
+        components = check_config(config)
+        costs = sampling_costs(config)
+    except BaseException:
+        if ex is not None:
+            ex.close(cancel=True)
+        raise
     cancel = True
     outcome = RunOutcome(out, out / SUMMARY_ECSV, out / SUMMARY_FITS, out / RUN_TOML,
                          stars=len(catalog), notices=outcome_notes)
@@ -318,6 +359,10 @@ def _run_locked(catalog, out, config, hashes, executor, workers, scheduler, forc
                  ", forced" if force else "")
         for note in outcome_notes:
             LOG.info("notice: %s", note)
+        for line in costs if todo else ():  # before the first star starts, once per run
+            LOG.info("%s", line)
+            if echo:
+                print(f"radwalk: {line}", file=sys.stderr, flush=True)
         waiting = {e.row for e in todo}
         for e in catalog:
             if e.star is None:
