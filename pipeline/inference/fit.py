@@ -79,10 +79,7 @@ def stages_for(config: RunConfig, opacity: str | None = None) -> StageSet:
     return stages
 
 
-# "units" (a law 10x low: m^2/kg for cm^2/g) costs nothing measurable here; "star" (the law at the layers of
-# solved zero-age stars) is left to `radwalk check-plugin`: it solves four stars, about 2 s of CPU in every
-# fresh process for a plugin's law, near half a star's fit.
-PROBE_CHECKS = ("configure", "call", "shape", "finite", "positive", "inputs", "units")
+PROBE_CHECKS = ("configure", "call", "shape", "finite", "positive", "inputs")
 PROBE_POINTS = 24
 
 

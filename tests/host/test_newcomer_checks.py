@@ -196,16 +196,3 @@ def radwalk_profiles():
     assert re.match(r"T < 0 at r/R=0\.9[0-9]+, rho=[0-9.e+-]+ g/cm\^3, layer 201 of [0-9]+ from the centre of ",
                     row.detail), row.detail
     assert "grid point" not in row.detail
-
-
-def test_a_fit_refuses_a_law_in_m2_per_kg_before_it_starts(tmp_path):
-    # the fit's own probe (radwalk.inference.fit.PROBE_CHECKS) includes the units check: the SI law is named at
-    # once instead of fitting every star as ten times too transparent
-    from radwalk.host.config import RunConfig
-    from radwalk.inference.fit import check_opacity_contract, stages_for
-
-    path = write(tmp_path, name="si-fit-law", body=f"return 0.1 * ({CM2_PER_G})")
-    check_opacity_contract.cache_clear()
-    with pytest.raises(PluginError, match=r"opacity 'si-fit-law' .* fails the 'units' check .*check the units"):
-        stages_for(RunConfig(stages={"opacity": "si-fit-law"}, plugins=(path,)))
-    check_opacity_contract.cache_clear()
