@@ -79,6 +79,10 @@ def stages_for(config: RunConfig, opacity: str | None = None) -> StageSet:
     return stages
 
 
+# Not "units" (a law below the electron-scattering floor, as a law in m^2/kg is): a fit must stay free to try a
+# law that is low on purpose (a what-if, or a comparison against a law ten times too transparent), and
+# `radwalk check-plugin` names such a law with "check the units".  Not "star" either: it solves four stars,
+# about 2 s of CPU in every fresh process for a plugin's law, near half a star's fit.
 PROBE_CHECKS = ("configure", "call", "shape", "finite", "positive", "inputs")
 PROBE_POINTS = 24
 
