@@ -233,7 +233,7 @@ def run_catalog(catalog_path, out_dir, config: RunConfig, executor: str = "local
     -------
     RunOutcome
     """
-    from radwalk.cli.progress import plain_lines, stderr_is_terminal
+    from radwalk.run.log_lines import plain_lines, stderr_is_terminal
 
     if quiet or stderr_is_terminal():
         return _run_catalog(catalog_path, out_dir, config, executor, workers, scheduler, force, report, quiet,

@@ -247,28 +247,27 @@ def test_resume_skips_finished_stars(base, tmp_path):
     same_summary(base["ref"] / "summary.ecsv", out / "summary.ecsv")
 
 
-@pytest.mark.parametrize("how", ["sigkill", "ctrl-c"])
-@pytest.mark.subprocess
-def test_interrupted_part_way_then_resumed_gives_the_same_summary(base, tmp_path, how):
-    # sigkill: the run's own process is killed (as by the OOM killer), its workers must die with it;
-    # ctrl-c: SIGINT to the whole process group, as a terminal sends it.
-    psutil = pytest.importorskip("psutil")
-    out = tmp_path / "stopped"
+def _start_and_stop(base, tmp_path, out, how, psutil):
+    """Starts a catalog run in its own process group and, once a star is done, kills it (``sigkill``) or sends
+    the group SIGINT (``ctrl-c``); returns (process, watched summaries, its children, whether the signal went
+    to a running run)."""
     script = tmp_path / "run.py"
-    script.write_text(textwrap.dedent(f"""\
+    script.write_text(textwrap.dedent("""\
         import sys
         from radwalk.run.orchestrate import load_run_config, run_catalog
         if __name__ == "__main__":
             try:
-                run_catalog({str(base["catalog"])!r}, {str(out)!r}, load_run_config({str(base["config_path"])!r}),
-                            workers=1, report=False, plots=False, quiet=True)
+                run_catalog(sys.argv[1], sys.argv[2], load_run_config(sys.argv[3]), workers=1, report=False,
+                            plots=False, quiet=True)
             except KeyboardInterrupt:
                 sys.exit(130)
         """))
     env = {**os.environ, "PYTHONPATH": str(ROOT)}
-    proc = subprocess.Popen([sys.executable, str(script)], cwd=ROOT, env=env, start_new_session=True)
+    proc = subprocess.Popen([sys.executable, str(script), str(base["catalog"]), str(out), str(base["config_path"])],
+                            cwd=ROOT, env=env, start_new_session=True)
     watch = [star_folder(out, sid) / "summary.json" for sid in IDS[:4]]
     children = []
+    sent = False
     try:
         deadline = time.monotonic() + 120
         while not any(p.exists() for p in watch):
@@ -279,14 +278,35 @@ def test_interrupted_part_way_then_resumed_gives_the_same_summary(base, tmp_path
             except psutil.NoSuchProcess:
                 pass
             time.sleep(0.02)
-        if how == "sigkill":
-            os.kill(proc.pid, signal.SIGKILL)
-        else:
-            os.killpg(proc.pid, signal.SIGINT)
-        rc = proc.wait(30)
+        if proc.poll() is None and sum(p.exists() for p in watch) < len(watch):  # else too late to test resuming
+            sent = True
+            if how == "sigkill":
+                os.kill(proc.pid, signal.SIGKILL)
+            else:
+                os.killpg(proc.pid, signal.SIGINT)
+        proc.wait(30)
     finally:
         if proc.poll() is None:
             os.killpg(proc.pid, signal.SIGKILL)
+    return proc, watch, children, sent
+
+
+@pytest.mark.parametrize("how", ["sigkill", "ctrl-c"])
+@pytest.mark.subprocess
+def test_interrupted_part_way_then_resumed_gives_the_same_summary(base, tmp_path, how):
+    # sigkill: the run's own process is killed (as by the OOM killer), its workers must die with it;
+    # ctrl-c: SIGINT to the whole process group, as a terminal sends it.
+    psutil = pytest.importorskip("psutil")
+    # A star of this quick config takes about half a second, so on a loaded machine the whole run can end
+    # before this process sees the first star done and sends the signal: such an attempt tests nothing and is
+    # made again in a new folder (at most three times).  A run still going when the signal is sent must stop.
+    for attempt in range(3):
+        out = tmp_path / f"stopped-{attempt}"
+        proc, watch, children, sent = _start_and_stop(base, tmp_path, out, how, psutil)
+        rc = proc.wait(30)
+        if sent:
+            break
+    assert sent, "the run ended before a star's end could be seen, three times"
     assert rc == (-signal.SIGKILL if how == "sigkill" else 130)
     done = [p for p in watch if p.exists()]
     assert 1 <= len(done) < 4, "the interruption came too late to test resuming"
