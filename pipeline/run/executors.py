@@ -219,11 +219,16 @@ def local_cluster(workers: int):
     One thread per worker: parallelism is over stars, in processes.
     """
     require_dask()
+    import dask
     from distributed import LocalCluster
 
-    return LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
-                        dashboard_address="127.0.0.1:0", worker_dashboard_address="127.0.0.1:0",
-                        scheduler_kwargs={"dashboard": False}, silence_logs=logging.ERROR)
+    # The workers' statistical profiler samples the running task's stack every 10 ms; a star's fit is mostly
+    # Python (the sampler's moves), so the sampling costs it CPU for a dashboard that is off here anyway.  The
+    # nannies hand this setting to their workers.
+    with dask.config.set({"distributed.worker.profile.enabled": False}):
+        return LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, host="127.0.0.1",
+                            dashboard_address="127.0.0.1:0", worker_dashboard_address="127.0.0.1:0",
+                            scheduler_kwargs={"dashboard": False}, silence_logs=logging.ERROR)
 
 
 class _DaskExecutor:
