@@ -26,30 +26,29 @@ def result():
     return radwalk.fit(**STAR, id="api star", config=FAST, seed=4)
 
 
-def test_fit_summary_is_the_summary_json_of_the_command_line(result, tmp_path, capsys):
-    toml = tmp_path / "fast.toml"
+@pytest.fixture(scope="module")
+def cli_fit(tmp_path_factory):
+    """The same star, config and seed through `radwalk fit`: its output folder."""
+    folder = tmp_path_factory.mktemp("cli")
+    toml = folder / "fast.toml"
     toml.write_text("[settings]\nband_stars = 2\n[sampler]\n"
                     + "\n".join(f"{k} = {v}" for k, v in FAST["sampler"].items()) + "\n")
     code = main(["fit", "--id", "api star", "--radius", "1.02", "0.02", "--luminosity", "1.05", "0.05", "--teff",
-                 "5800", "60", "--config", str(toml), "--seed", "4", "--out", str(tmp_path / "cli"), "--no-plots"])
-    capsys.readouterr()
+                 "5800", "60", "--config", str(toml), "--seed", "4", "--out", str(folder / "out"), "--no-plots"])
     assert code == 0
-    cli = json.loads((tmp_path / "cli" / "summary.json").read_text(), parse_constant=_refuse)
+    return folder / "out"
+
+
+def test_fit_summary_is_the_summary_json_of_the_command_line(result, cli_fit):
+    cli = json.loads((cli_fit / "summary.json").read_text(), parse_constant=_refuse)
     api = json.loads(json.dumps(result.summary, allow_nan=False), parse_constant=_refuse)  # strict JSON content
     for key in ("id", "status", "parameters", "derived", "observed"):
         assert api[key] == cli[key], key
 
 
-def test_write_gives_the_chain_file_of_the_command_line(result, tmp_path, capsys):
+def test_write_gives_the_chain_file_of_the_command_line(result, cli_fit, tmp_path):
     # the same star, config and seed through `radwalk fit` and through FitResult.write: the same chain.h5
-    toml = tmp_path / "fast.toml"
-    toml.write_text("[settings]\nband_stars = 2\n[sampler]\n"
-                    + "\n".join(f"{k} = {v}" for k, v in FAST["sampler"].items()) + "\n")
-    code = main(["fit", "--id", "api star", "--radius", "1.02", "0.02", "--luminosity", "1.05", "0.05", "--teff",
-                 "5800", "60", "--config", str(toml), "--seed", "4", "--out", str(tmp_path / "cli"), "--no-plots"])
-    capsys.readouterr()
-    assert code == 0
-    cli = read_chain(tmp_path / "cli" / "chain.h5")
+    cli = read_chain(cli_fit / "chain.h5")
     api = read_chain(result.write(tmp_path / "api") / "chain.h5")
     assert set(api) == set(cli)  # every attribute and dataset, the derived group among them
     assert api["units"] == cli["units"] and api["star_id"] == "api star" and api["seed"] == 4
